@@ -1,0 +1,81 @@
+/* Copyright 2026 outstage developers */
+/* SPDX-License-Identifier: ISC */
+
+/**
+ * @file os_circuit.h
+ * Internal interface between the stage machinery (os_stage.c: oversampling,
+ * smoothing, bypass, meters) and each circuit (os_stage_opamp.c, ...). A circuit
+ * advances its state by one oversampled step of length h and returns the load
+ * voltage. Not part of the public API.
+ */
+
+#ifndef OS_CIRCUIT_H
+#define OS_CIRCUIT_H
+
+#include "os_opamp.h"
+#include "os_solver.h"
+
+#ifdef __cplusplus
+extern "C" {
+#endif
+
+/** Circuit parameters in SI units (smoothed values). */
+typedef struct {
+    double gain;      /**< closed-loop gain G = 1 + R2/R1, V/V */
+    double rail;      /**< V */
+    double headroom;  /**< V */
+    double ilimit;    /**< A */
+    double load;      /**< ohm */
+    double gbw;       /**< Hz */
+    double slew;      /**< V/s */
+    double beta;      /**< push-pull: forward current gain */
+    double vbe;       /**< push-pull: Vbe at 100 mA, V */
+    double bias;      /**< push-pull: base-to-base bias, V */
+    double emitter_r; /**< push-pull: ohm */
+    double loop;      /**< push-pull: 0 op-amp output, 1 load */
+} OsCircuitParams;
+
+/** What one step reports for the meters. */
+typedef struct {
+    double vload;       /**< load voltage, V */
+    double iload;       /**< load current, A */
+    double dissipation; /**< power in the output transistors, W */
+    int limiting;       /**< 1 while the op-amp current limiter is engaged */
+    int iters;          /**< Newton iterations used */
+} OsStepResult;
+
+/** Total resistance of the feedback divider R1 + R2, ohm. A common choice for a
+ *  general-purpose op-amp (common practice: 1 k to 100 k). */
+#define OS_FEEDBACK_TOTAL 10.0e3
+
+/** Share of the op-amp's drive diverted by its limiter above which the limiter
+ *  counts as engaged for the `limiting` meter. */
+#define OS_LIMITING_SHARE 0.1
+
+/** The op-amp stage: a non-inverting amplifier into a load. */
+typedef struct {
+    OsOpampCoeffs op;
+    double inv_g; /**< 1/G: share of the output fed back */
+    double inv_rl;
+    double kx;  /**< output current per volt of x: 1 / (R_load||R_fb + Rs) */
+    double rho; /**< output voltage per volt of x: (R_load||R_fb) / (R_load||R_fb + Rs) */
+    double gamma;
+    OsBdf2 hist;
+    /* per-step context of the residual */
+    double c, vin, limit;
+} OsOpampStage;
+
+/** Derive coefficients for step @p h (s). Real-time safe. */
+void os_opamp_stage_update(OsOpampStage *s, const OsCircuitParams *p, double h);
+/** Clear the state. Real-time safe. */
+void os_opamp_stage_reset(OsOpampStage *s);
+/** One step with input voltage @p vin. Real-time safe. */
+void os_opamp_stage_step(OsOpampStage *s, double vin, OsStepResult *r);
+/** Whether the state is finite. */
+int os_opamp_stage_ok(const OsOpampStage *s);
+
+#ifdef __cplusplus
+}
+#endif
+
+#endif /* OS_CIRCUIT_H */

@@ -1,0 +1,106 @@
+/* Copyright 2026 outstage developers */
+/* SPDX-License-Identifier: ISC */
+
+/**
+ * @file os_opamp.h
+ * Behavioural macro-model of a general-purpose op-amp, shared by every stage.
+ *
+ * One state, the voltage x of the internal high-impedance node (the output
+ * stage's input, "open-circuit output voltage"), obeys (all rates in V/s):
+ *
+ *   dx/dt = SR tanh(wt vd / SR) - wp x
+ *           - SR [E((io - Ilim)/Ik) - E((-io - Ilim)/Ik)]     current limiter
+ *           - SR [E((x - Vsw)/w)    - E((-x - Vsw)/w)]        swing clamp
+ *
+ * vd  differential input voltage (V), io output current (A, out of the pin),
+ * wt  = 2 pi GBW, wp = wt / A0 (dominant pole, A0 open-loop gain),
+ * SR  slew rate (V/s): the input stage's tail current over the compensation
+ *     capacitor, reached when the stage saturates (Boyle, Cohn, Pederson and
+ *     Solomon, "Macromodeling of integrated circuit operational amplifiers",
+ *     IEEE J. Solid-State Circuits SC-9(6), 1974: SR = I_tail / Cc, wt = gm / Cc),
+ * Ilim current limit; Ik = VT / Rs its knee, with Rs = OS_VSENSE / Ilim the
+ *     sense resistor of a sense-resistor-and-transistor limiter whose transistor
+ *     diverts the drive current exponentially (Ebers-Moll) once io Rs nears its
+ *     turn-on voltage,
+ * Vsw = rail - headroom (at least OS_SWING_MIN_SHARE x rail), w the knee width
+ *     of the swing clamp,
+ * E(u) = exp(u), continued linearly above OS_EXP_MAX so it cannot overflow.
+ *
+ * The clamps are scaled by SR, so at full overdrive they balance the saturated
+ * input stage exactly at io = Ilim and x = Vsw, and x never winds up beyond
+ * them: recovery from current limiting or clipping is immediate.
+ *
+ * The output pin is x behind the sense resistor: vo = x - Rs io.
+ */
+
+#ifndef OS_OPAMP_H
+#define OS_OPAMP_H
+
+#ifdef __cplusplus
+extern "C" {
+#endif
+
+/** Open-loop DC gain, 200 V/mV: a typical general-purpose bipolar op-amp data
+ *  sheet figure (from memory). */
+#define OS_OPAMP_A0 2.0e5
+/** Turn-on voltage of the current-sense transistor, V (common practice: a
+ *  silicon Vbe of about 0.6-0.7 V). Sets Rs = OS_VSENSE / Ilim. */
+#define OS_VSENSE 0.65
+/** Knee width of the swing clamp, V (a modelling choice, not a datasheet value). */
+#define OS_SWING_KNEE 0.05
+/** The swing never shrinks below this share of the rail, so every setting is valid. */
+#define OS_SWING_MIN_SHARE 0.05
+/** Linear continuation point of the exponentials. */
+#define OS_EXP_MAX 30.0
+/** Boltzmann constant (J/K), elementary charge (C), 27 degC in kelvin (CODATA 2018). */
+#define OS_BOLTZMANN 1.380649e-23
+#define OS_CHARGE 1.602176634e-19
+#define OS_T_NOMINAL 300.15
+/** Thermal voltage kT/q at 27 degC, the SPICE default temperature: 25.86 mV. */
+#define OS_VT (OS_BOLTZMANN * OS_T_NOMINAL / OS_CHARGE)
+
+/** Physical op-amp parameters in SI units. */
+typedef struct {
+    double gbw;      /**< gain-bandwidth product, Hz */
+    double slew;     /**< slew rate, V/s */
+    double rail;     /**< supply, each side, V */
+    double headroom; /**< swing short of each rail, V */
+    double ilimit;   /**< output current limit, A */
+} OsOpampParams;
+
+/** Coefficients derived from OsOpampParams. */
+typedef struct {
+    double sr;     /**< slew rate, V/s */
+    double kin;    /**< wt / SR, 1/V */
+    double wp;     /**< dominant pole, rad/s */
+    double vsw;    /**< output swing limit, V */
+    double inv_w;  /**< 1 / swing knee width, 1/V */
+    double ilim;   /**< current limit, A */
+    double inv_ik; /**< 1 / current-limit knee width, 1/A */
+    double rs;     /**< sense resistor, ohm */
+} OsOpampCoeffs;
+
+/** Derive coefficients from @p p. Real-time safe. */
+void os_opamp_coeffs(const OsOpampParams *p, OsOpampCoeffs *c);
+
+/** Rate of the internal node and its partial derivatives. */
+typedef struct {
+    double f;      /**< dx/dt, V/s */
+    double df_dx;  /**< partial derivative by x, 1/s */
+    double df_dvd; /**< by vd, 1/s */
+    double df_dio; /**< by io, V/(s A) */
+    double limit;  /**< share of the drive diverted by the current limiter, 0..1+ */
+} OsOpampRate;
+
+/** Evaluate dx/dt at state @p x, differential input @p vd, output current @p io.
+ *  Real-time safe. */
+void os_opamp_rate(const OsOpampCoeffs *c, double x, double vd, double io, OsOpampRate *r);
+
+/** exp(u) continued linearly above OS_EXP_MAX; *d receives the derivative. */
+double os_exp_lim(double u, double *d);
+
+#ifdef __cplusplus
+}
+#endif
+
+#endif /* OS_OPAMP_H */

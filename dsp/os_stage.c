@@ -1,0 +1,421 @@
+/* Copyright 2026 outstage developers */
+/* SPDX-License-Identifier: ISC */
+
+/* The stage machinery shared by every circuit: parameter targets and
+ * smoothing, level conventions of the interface contract, oversampling,
+ * latency-aligned dry path for bypass and the residual, meters, and the
+ * guards that keep hostile input out of the state. */
+
+#include "outstage.h"
+
+#include "os_circuit.h"
+#include "os_oversampler.h"
+
+#include <math.h>
+#include <stdlib.h>
+#include <string.h>
+
+#if defined(__SSE__) || defined(__x86_64__)
+#include <xmmintrin.h>
+#define OS_HAVE_MXCSR 1
+#endif
+
+/* Parameter ramps last this long (s): long enough that sweeping a control
+ * makes no zipper noise, short enough to feel immediate. */
+#define SMOOTH_TIME 0.02
+/* Bypass and listen crossfades (s). */
+#define FADE_TIME 0.01
+/* Input samples are clamped to +-this (60 dBFS) before anything else. */
+#define INPUT_CLAMP 1000.0f
+
+typedef struct {
+    double cur; /* value in the smoothing domain (log for logarithmic ports) */
+    double tgt;
+    double step;
+    int left;
+    int log_domain;
+} Ramp;
+
+struct OsStage {
+    OsStageKind kind;
+    double rate;
+    int ramp_len;
+    double fade_step;
+
+    float target[OS_P_COUNT]; /* in port units, clamped */
+    int has[OS_P_COUNT];
+    Ramp ramp[OS_P_COUNT];
+    int ramping;
+
+    /* derived, base rate */
+    double fullscale, drive_lin, trim_lin, gain_lin;
+    OsCircuitParams cp;
+
+    OsOversamplerDesign design;
+    OsOversampler os;
+
+    OsOpampStage opamp;
+
+    /* latency-aligned dry path */
+    float *dry;
+    uint32_t dry_len, dry_pos;
+
+    double mix, mix_tgt;       /* 1 processed, 0 bypassed */
+    double listen, listen_tgt; /* weight of the ideal response subtracted */
+
+    OsMeters meters;
+};
+
+const char *os_strerror(OsStatus status)
+{
+    switch (status) {
+    case OS_OK:
+        return "success";
+    case OS_ERR_ARGUMENT:
+        return "invalid argument";
+    case OS_ERR_NO_MEMORY:
+        return "out of memory";
+    case OS_ERR_SAMPLE_RATE:
+        return "sample rate out of range (8 kHz to 768 kHz)";
+    case OS_ERR_UNAVAILABLE:
+        return "stage not available in this build";
+    }
+    return "unknown status";
+}
+
+static double ramp_value(const Ramp *r)
+{
+    return r->log_domain ? exp(r->cur) : r->cur;
+}
+
+/* Circuit parameters from the smoothed values. */
+static void derive(OsStage *s)
+{
+    const Ramp *r = s->ramp;
+    s->fullscale = ramp_value(&r[OS_P_FULLSCALE]);
+    s->drive_lin = pow(10.0, ramp_value(&r[OS_P_DRIVE]) / 20.0);
+    s->trim_lin = pow(10.0, ramp_value(&r[OS_P_TRIM]) / 20.0);
+    s->gain_lin = pow(10.0, ramp_value(&r[OS_P_GAIN]) / 20.0);
+    OsCircuitParams *p = &s->cp;
+    p->gain = s->gain_lin;
+    p->rail = ramp_value(&r[OS_P_RAIL]);
+    p->headroom = ramp_value(&r[OS_P_HEADROOM]);
+    p->ilimit = ramp_value(&r[OS_P_ILIMIT]) * 1e-3;
+    p->load = ramp_value(&r[OS_P_LOAD]);
+    p->gbw = ramp_value(&r[OS_P_GBW]) * 1e6;
+    p->slew = ramp_value(&r[OS_P_SLEW]) * 1e6;
+    p->beta = ramp_value(&r[OS_P_BETA]);
+    p->vbe = ramp_value(&r[OS_P_VBE]);
+    p->bias = ramp_value(&r[OS_P_BIAS]);
+    p->emitter_r = ramp_value(&r[OS_P_EMITTER_R]);
+    p->loop = ramp_value(&r[OS_P_LOOP]);
+    const double h = 1.0 / (s->rate * s->os.factor);
+    os_opamp_stage_update(&s->opamp, p, h);
+}
+
+static void ramp_jump(Ramp *r)
+{
+    r->cur = r->tgt;
+    r->left = 0;
+}
+
+static void set_ramp_target(OsStage *s, OsParam p, float value, int jump)
+{
+    Ramp *r = &s->ramp[p];
+    r->tgt = r->log_domain ? log((double)value) : (double)value;
+    if (jump) {
+        ramp_jump(r);
+        return;
+    }
+    r->left = s->ramp_len;
+    r->step = (r->tgt - r->cur) / r->left;
+    s->ramping = 1;
+}
+
+static int valid_factor(float v)
+{
+    /* nearest of 1, 2, 4, 8, 16 on a log scale */
+    const double l = log2((double)v);
+    int m = (int)lround(l);
+    if (m < 0) {
+        m = 0;
+    }
+    if (m > OS_OVERSAMPLE_MAX_LOG2) {
+        m = OS_OVERSAMPLE_MAX_LOG2;
+    }
+    return 1 << m;
+}
+
+static void clear_signal_state(OsStage *s)
+{
+    os_oversampler_init(&s->os, &s->design, s->os.factor);
+    os_opamp_stage_reset(&s->opamp);
+    memset(s->dry, 0, s->dry_len * sizeof(float));
+    s->dry_pos = 0;
+}
+
+OsStage *os_stage_new(OsStageKind kind, double sample_rate, OsStatus *status)
+{
+    OsStatus st = OS_OK;
+    OsStage *s = NULL;
+    if ((unsigned)kind >= (unsigned)OS_STAGE_COUNT) {
+        st = OS_ERR_ARGUMENT;
+    } else if (!os_stage_available(kind)) {
+        st = OS_ERR_UNAVAILABLE;
+    } else if (!(sample_rate >= OS_RATE_MIN && sample_rate <= OS_RATE_MAX)) {
+        st = OS_ERR_SAMPLE_RATE;
+    } else if ((s = calloc(1, sizeof(*s))) == NULL) {
+        st = OS_ERR_NO_MEMORY;
+    }
+    if (st == OS_OK && os_oversampler_design(&s->design) != 0) {
+        st = OS_ERR_ARGUMENT;
+    }
+    if (st == OS_OK) {
+        s->kind = kind;
+        s->rate = sample_rate;
+        s->ramp_len = (int)ceil(SMOOTH_TIME * sample_rate);
+        s->fade_step = 1.0 / ceil(FADE_TIME * sample_rate);
+        int maxlat = 0;
+        for (int f = 1; f <= OS_OVERSAMPLE_MAX; f *= 2) {
+            const int l = os_oversampler_latency(&s->design, f);
+            maxlat = l > maxlat ? l : maxlat;
+        }
+        s->dry_len = (uint32_t)maxlat + 1;
+        s->dry = calloc(s->dry_len, sizeof(float));
+        if (s->dry == NULL) {
+            st = OS_ERR_NO_MEMORY;
+        }
+    }
+    if (st != OS_OK) {
+        if (s) {
+            free(s->dry);
+            free(s);
+        }
+        if (status) {
+            *status = st;
+        }
+        return NULL;
+    }
+
+    /* Every parameter starts at its port default; parameters this stage lacks
+     * take the push-pull defaults so the derived values stay meaningful. */
+    for (int p = 0; p < OS_P_COUNT; ++p) {
+        const OsPortInfo *info = os_port_for_param(kind, (OsParam)p);
+        if (!info) {
+            info = os_port_for_param(OS_STAGE_PUSHPULL, (OsParam)p);
+        }
+        s->has[p] = os_port_for_param(kind, (OsParam)p) != NULL;
+        s->ramp[p].log_domain = (info->flags & OS_PF_LOGARITHMIC) != 0;
+        s->target[p] = info->def;
+        set_ramp_target(s, (OsParam)p, info->def, 1);
+    }
+    s->ramping = 0;
+    os_oversampler_init(&s->os, &s->design, valid_factor(s->target[OS_P_OVERSAMPLE]));
+    os_stage_reset(s);
+    if (status) {
+        *status = OS_OK;
+    }
+    return s;
+}
+
+void os_stage_free(OsStage *stage)
+{
+    if (stage) {
+        free(stage->dry);
+        free(stage);
+    }
+}
+
+void os_stage_reset(OsStage *s)
+{
+    for (int p = 0; p < OS_P_COUNT; ++p) {
+        ramp_jump(&s->ramp[p]);
+    }
+    s->ramping = 0;
+    const int f = valid_factor(s->target[OS_P_OVERSAMPLE]);
+    s->os.factor = f;
+    clear_signal_state(s);
+    derive(s);
+    s->mix = s->mix_tgt = s->target[OS_P_ENABLE] >= 0.5f ? 1.0 : 0.0;
+    s->listen = s->listen_tgt = s->target[OS_P_LISTEN] >= 0.5f ? 1.0 : 0.0;
+    memset(&s->meters, 0, sizeof(s->meters));
+}
+
+OsStatus os_stage_set(OsStage *s, OsParam param, float value)
+{
+    if (!s || (unsigned)param >= (unsigned)OS_P_COUNT || !s->has[param]) {
+        return OS_ERR_ARGUMENT;
+    }
+    if (isnan(value)) {
+        return OS_OK;
+    }
+    const OsPortInfo *info = os_port_for_param(s->kind, param);
+    value = value < info->min ? info->min : value > info->max ? info->max : value;
+    if (info->flags & (OS_PF_TOGGLE | OS_PF_INTEGER)) {
+        value = param == OS_P_OVERSAMPLE ? (float)valid_factor(value) : roundf(value);
+    }
+    if (value == s->target[param]) {
+        return OS_OK;
+    }
+    s->target[param] = value;
+    switch (param) {
+    case OS_P_ENABLE:
+        s->mix_tgt = value >= 0.5f ? 1.0 : 0.0;
+        break;
+    case OS_P_LISTEN:
+        s->listen_tgt = value >= 0.5f ? 1.0 : 0.0;
+        break;
+    case OS_P_OVERSAMPLE:
+        /* A new factor needs new filters: the signal state restarts (a short
+         * gap of one latency) and the reported latency changes. */
+        s->os.factor = (int)value;
+        clear_signal_state(s);
+        derive(s);
+        break;
+    case OS_P_LOOP:
+        set_ramp_target(s, param, value, 1);
+        derive(s);
+        break;
+    default:
+        set_ramp_target(s, param, value, 0);
+        break;
+    }
+    return OS_OK;
+}
+
+float os_stage_get(const OsStage *s, OsParam param)
+{
+    if (!s || (unsigned)param >= (unsigned)OS_P_COUNT) {
+        return 0.0f;
+    }
+    return s->target[param];
+}
+
+uint32_t os_stage_latency(const OsStage *s)
+{
+    return (uint32_t)s->os.latency;
+}
+
+void os_stage_meters(const OsStage *s, OsMeters *m)
+{
+    *m = s->meters;
+}
+
+static void advance_ramps(OsStage *s)
+{
+    int any = 0;
+    for (int p = 0; p < OS_P_COUNT; ++p) {
+        Ramp *r = &s->ramp[p];
+        if (r->left > 0) {
+            if (--r->left == 0) {
+                r->cur = r->tgt;
+            } else {
+                r->cur += r->step;
+                any = 1;
+            }
+        }
+    }
+    s->ramping = any;
+    derive(s);
+}
+
+static double approach(double cur, double tgt, double step)
+{
+    if (cur < tgt) {
+        return fmin(cur + step, tgt);
+    }
+    return fmax(cur - step, tgt);
+}
+
+static void process(OsStage *s, const float *in, float *out, double *vload, uint32_t n)
+{
+#ifdef OS_HAVE_MXCSR
+    /* Flush denormals to zero (FTZ, bit 15) and treat them as zero (DAZ, bit 6)
+     * while we run; restore the host's mode afterwards. */
+    const unsigned int csr = _mm_getcsr();
+    _mm_setcsr(csr | 0x8040u);
+#endif
+    double y[OS_OVERSAMPLE_MAX];
+    double peak = 0.0, power = 0.0, iters = 0.0;
+    uint32_t limited = 0, steps = 0;
+    const int factor = s->os.factor;
+    const double inv_factor = 1.0 / factor;
+
+    for (uint32_t i = 0; i < n; ++i) {
+        if (s->ramping) {
+            advance_ramps(s);
+        }
+        float smp = in[i];
+        if (!isfinite(smp)) {
+            smp = 0.0f;
+        }
+        smp = smp > INPUT_CLAMP ? INPUT_CLAMP : smp < -INPUT_CLAMP ? -INPUT_CLAMP : smp;
+
+        /* Contract: stage input voltage = sample x fullscale x 10^(drive/20). */
+        os_oversampler_up(&s->os, (double)smp * s->fullscale * s->drive_lin, y);
+        double psum = 0.0;
+        for (int k = 0; k < factor; ++k) {
+            OsStepResult r;
+            os_opamp_stage_step(&s->opamp, y[k], &r);
+            y[k] = r.vload;
+            peak = fmax(peak, fabs(r.iload));
+            psum += r.vload * r.iload;
+            limited += (uint32_t)r.limiting;
+            iters += r.iters;
+        }
+        power += psum * inv_factor;
+        steps += (uint32_t)factor;
+        const double v = os_oversampler_down(&s->os, y);
+        if (vload) {
+            vload[i] = v;
+        }
+
+        /* Dry path, delayed by the latency. */
+        s->dry[s->dry_pos] = smp;
+        uint32_t rd = s->dry_pos + s->dry_len - (uint32_t)s->os.latency;
+        if (rd >= s->dry_len) {
+            rd -= s->dry_len;
+        }
+        const double dry = s->dry[rd];
+        if (++s->dry_pos == s->dry_len) {
+            s->dry_pos = 0;
+        }
+
+        /* Contract: output = vload / (G x fullscale) x 10^(trim/20); the residual
+         * subtracts the ideal linear response, the input x drive x trim. */
+        s->mix = approach(s->mix, s->mix_tgt, s->fade_step);
+        s->listen = approach(s->listen, s->listen_tgt, s->fade_step);
+        double wet = v / (s->gain_lin * s->fullscale) * s->trim_lin;
+        wet -= s->listen * dry * s->drive_lin * s->trim_lin;
+        double o = s->mix * wet + (1.0 - s->mix) * dry;
+        if (fabs(o) < 1e-30) {
+            o = 0.0;
+        }
+        out[i] = (float)o;
+    }
+
+    /* A state that is not finite can only come from a fault; start afresh
+     * rather than output silence forever. */
+    if (!os_opamp_stage_ok(&s->opamp)) {
+        clear_signal_state(s);
+    }
+
+    s->meters.peak_current = peak;
+    s->meters.limiting = steps ? 100.0 * limited / steps : 0.0;
+    s->meters.load_power = n ? power / n : 0.0;
+    s->meters.dissipation = 0.0;
+    s->meters.newton_iters = steps ? iters / steps : 0.0;
+#ifdef OS_HAVE_MXCSR
+    _mm_setcsr(csr);
+#endif
+}
+
+void os_stage_process(OsStage *s, const float *in, float *out, uint32_t n)
+{
+    process(s, in, out, NULL, n);
+}
+
+void os_stage_process_probe(OsStage *s, const float *in, float *out, double *vload, uint32_t n)
+{
+    process(s, in, out, vload, n);
+}

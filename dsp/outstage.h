@@ -1,0 +1,103 @@
+/* Copyright 2026 outstage developers */
+/* SPDX-License-Identifier: ISC */
+
+/**
+ * @file outstage.h
+ * Public API of the outstage DSP library: amplifier output stages simulated as
+ * circuits, oversampled, with meters. Needs only libm. Knows nothing of plugin
+ * APIs, files or printing.
+ */
+
+#ifndef OUTSTAGE_H
+#define OUTSTAGE_H
+
+#include <stdint.h>
+
+#include "os_ports.h"
+
+#ifdef __cplusplus
+extern "C" {
+#endif
+
+/** Status codes returned by the library. */
+typedef enum {
+    OS_OK = 0,          /**< success */
+    OS_ERR_ARGUMENT,    /**< an argument is out of its domain (NULL, unknown id) */
+    OS_ERR_NO_MEMORY,   /**< allocation failed */
+    OS_ERR_SAMPLE_RATE, /**< sample rate outside 8 kHz .. 768 kHz */
+    OS_ERR_UNAVAILABLE  /**< the stage kind is not built into this library */
+} OsStatus;
+
+/** A static English description of @p status. Real-time safe. */
+const char *os_strerror(OsStatus status);
+
+/** Lowest and highest host sample rates accepted by os_stage_new(), in Hz. */
+#define OS_RATE_MIN 8000.0
+#define OS_RATE_MAX 768000.0
+
+/** Meters of the last os_stage_process() call, from the simulated circuit. */
+typedef struct {
+    double peak_current; /**< largest |load current|, A */
+    double limiting;     /**< share of oversampled steps with the current limiter engaged, % */
+    double load_power;   /**< mean power into the load, W */
+    double dissipation;  /**< mean power in the output transistors (push-pull only), W */
+    double newton_iters; /**< mean Newton iterations per oversampled step */
+} OsMeters;
+
+/** One simulated output stage: circuit, oversampler, smoothing, bypass, meters. */
+typedef struct OsStage OsStage;
+
+/**
+ * Create a stage of @p kind for host rate @p sample_rate (Hz). All allocation
+ * happens here. Parameters start at the port table's defaults, unsmoothed.
+ * Returns NULL on failure; if @p status is not NULL it receives the reason.
+ * Not real-time safe.
+ */
+OsStage *os_stage_new(OsStageKind kind, double sample_rate, OsStatus *status);
+
+/** Free a stage; accepts NULL. Not real-time safe. */
+void os_stage_free(OsStage *stage);
+
+/**
+ * Clear all signal state (circuit, filters, delay lines, meters) and jump every
+ * parameter to its target without smoothing. No allocation; real-time safe.
+ */
+void os_stage_reset(OsStage *stage);
+
+/**
+ * Set parameter @p param (an OsParam) to @p value in the unit of its port
+ * (V, dB, mA, ohm, MHz, V/us, ...). Values outside the port's range are clamped,
+ * NaN is ignored. The change is smoothed during processing (oversampling factor
+ * and toggles switch at once). Real-time safe.
+ * Returns OS_ERR_ARGUMENT for a parameter the stage does not have.
+ */
+OsStatus os_stage_set(OsStage *stage, OsParam param, float value);
+
+/** The target value of @p param in its port unit (after clamping). Real-time safe. */
+float os_stage_get(const OsStage *stage, OsParam param);
+
+/**
+ * Process @p n frames from @p in to @p out (they may be the same buffer).
+ * Real-time safe: no allocation, lock, I/O or system call; denormals flushed;
+ * non-finite input is treated as silence. @p n may be 0.
+ */
+void os_stage_process(OsStage *stage, const float *in, float *out, uint32_t n);
+
+/** Meters of the last os_stage_process() call. Real-time safe. */
+void os_stage_meters(const OsStage *stage, OsMeters *meters);
+
+/** Processing delay in host frames at the current oversampling factor. Real-time safe. */
+uint32_t os_stage_latency(const OsStage *stage);
+
+/**
+ * Process @p n frames and also return the load voltage (V) of each frame,
+ * decimated through the same filters as the output, in @p vload (may be NULL).
+ * Meant for measurement and tests; real-time safe.
+ */
+void os_stage_process_probe(OsStage *stage, const float *in, float *out, double *vload, uint32_t n);
+
+#ifdef __cplusplus
+}
+#endif
+
+#endif /* OUTSTAGE_H */
