@@ -22,23 +22,10 @@ static double bessel_i0(double x)
     return sum;
 }
 
-int os_halfband_design(OsHalfband *hb, double transition, double atten_db)
+/* Taps of the even branch for a given K and Kaiser beta, unity gain at DC. */
+static void make_taps(OsHalfband *hb, int k, double beta)
 {
-    const double beta = atten_db > 50.0 ? 0.1102 * (atten_db - 8.7)
-                        : atten_db > 21.0
-                            ? 0.5842 * pow(atten_db - 21.0, 0.4) + 0.07886 * (atten_db - 21.0)
-                            : 0.0;
-    const double order = (atten_db - 8.0) / (2.285 * 2.0 * M_PI * transition);
-    /* N = 4K - 1 taps, so N - 1 = 4K - 2 >= order. */
-    int k = (int)ceil((order + 2.0) / 4.0);
-    if (k < 1) {
-        k = 1;
-    }
-    if (k > OS_HALFBAND_MAX_K) {
-        return -1;
-    }
     hb->k = k;
-    const int n = 4 * k - 1;
     const int c = 2 * k - 1;
     const double i0b = bessel_i0(beta);
     double odd_sum = 0.0;
@@ -54,8 +41,47 @@ int os_halfband_design(OsHalfband *hb, double transition, double atten_db)
     for (int i = 0; i < 2 * k; ++i) {
         hb->even[i] *= 0.5 / odd_sum;
     }
-    (void)n;
-    return 0;
+}
+
+/* Largest magnitude (linear) over the stopband [0.25 + transition/2, 0.5]. */
+static double stopband_peak(const OsHalfband *hb, double transition)
+{
+    const int c = 2 * hb->k - 1;
+    const double f0 = 0.25 + 0.5 * transition;
+    double worst = 0.0;
+    for (int g = 0; g <= 256; ++g) {
+        const double f = f0 + (0.5 - f0) * g / 256.0;
+        /* zero-phase response: 1/2 + 2 sum_i h[2i] cos(2 pi f (2i - c)) over one side */
+        double a = 0.5;
+        for (int i = 0; i < hb->k; ++i) {
+            a += 2.0 * hb->even[i] * cos(2.0 * M_PI * f * (double)(2 * i - c));
+        }
+        worst = fmax(worst, fabs(a));
+    }
+    return worst;
+}
+
+int os_halfband_design(OsHalfband *hb, double transition, double atten_db)
+{
+    const double beta = atten_db > 50.0 ? 0.1102 * (atten_db - 8.7)
+                        : atten_db > 21.0
+                            ? 0.5842 * pow(atten_db - 21.0, 0.4) + 0.07886 * (atten_db - 21.0)
+                            : 0.0;
+    const double order = (atten_db - 8.0) / (2.285 * 2.0 * M_PI * transition);
+    /* N = 4K - 1 taps, so N - 1 = 4K - 2 >= order. Kaiser's estimate is short
+     * for wide transitions, so lengthen until the response meets the spec. */
+    int k = (int)ceil((order + 2.0) / 4.0);
+    if (k < 1) {
+        k = 1;
+    }
+    const double limit = pow(10.0, -atten_db / 20.0);
+    for (; k <= OS_HALFBAND_MAX_K; ++k) {
+        make_taps(hb, k, beta);
+        if (stopband_peak(hb, transition) <= limit) {
+            return 0;
+        }
+    }
+    return -1;
 }
 
 void os_halfband_taps(const OsHalfband *hb, double *h)

@@ -54,15 +54,30 @@ static double residual(void *ctx, double x, double *d)
 
 void os_opamp_stage_step(OsOpampStage *s, double vin, OsStepResult *r)
 {
-    s->c = os_bdf2_c(&s->hist);
+    const OsOpampCoeffs *op = &s->op;
+    const double c = os_bdf2_c(&s->hist);
+    const double fb = s->rho * s->inv_g;
+    s->c = c;
     s->vin = vin;
-    /* Bracket: f(x) <= SR for x > 0 and >= -SR for x < 0 (the input stage is
-     * bounded by SR, every other term opposes x), so R changes sign inside. */
-    const double reach = 1.01 * s->gamma * s->op.sr + 1e-6;
-    const double lo = fmin(s->c, 0.0) - reach;
-    const double hi = fmax(s->c, 0.0) + reach;
+    /* Bracket. The input stage is bounded by SR and every other term of f opposes
+     * x, so |x - c| <= gamma SR. Beyond Xc, where one clamp has reached 3 (in
+     * units of SR), f < 0 for x > 0 (and f > 0 for x < 0): there R has the sign of
+     * x - c. Both bounds keep Newton out of the far exponential tails, where it
+     * could only creep back one knee width per iteration. */
+    const double reach = 1.01 * s->gamma * op->sr + 1e-6;
+    const double ln3 = 1.0986122886681098;
+    const double xc = fmin(op->vsw + ln3 / op->inv_w, (op->ilim + ln3 / op->inv_ik) / s->kx);
+    const double lo = fmax(fmin(c, 0.0) - reach, fmin(c, -xc));
+    const double hi = fmin(fmax(c, 0.0) + reach, fmax(c, xc));
+    /* Guess: the solution of the loop with the input stage and clamps linear, which
+     * is exact to first order whenever the op-amp is not slewing or clipping; at
+     * long steps (low rates) it is far better than extrapolating the history. */
+    const double wt = op->sr * op->kin;
+    const double x_lin = (c + s->gamma * wt * vin) / (1.0 + s->gamma * (wt * fb + op->wp));
+    const double guess =
+        fabs(op->kin * (vin - fb * x_lin)) < 0.5 ? x_lin : os_bdf2_predict(&s->hist);
     int iters = 0;
-    double x = os_newton_scalar(residual, s, os_bdf2_predict(&s->hist), lo, hi, 1e-7, 60, &iters);
+    double x = os_newton_scalar(residual, s, guess, lo, hi, 1e-7, 60, &iters);
     if (fabs(x) < 1e-30) {
         x = 0.0; /* keep subnormals out of the state */
     }
