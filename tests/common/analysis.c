@@ -58,7 +58,7 @@ size_t an_whole_periods(size_t n, double rate, double f0)
 {
     const double period = rate / f0;
     for (size_t p = (size_t)floor((double)n / period); p > 0; --p) {
-        const double len = p * period;
+        const double len = (double)p * period;
         if (fabs(len - round(len)) < 1e-9) {
             return (size_t)round(len);
         }

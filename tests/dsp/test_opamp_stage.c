@@ -49,8 +49,8 @@ static double *run_volts(OsStage *s, double rate, double f, double vin_peak, siz
 /* --- Linear region: gain = 1 + R2/R1 ------------------------------------- */
 
 typedef struct {
-    float gain_db;
-    float gbw_mhz;
+    double gain_db;
+    double gbw_mhz;
     double expect_db; /* 0: the gain setting itself; else the value to expect */
     const char *source;
 } GainCase;
@@ -74,8 +74,8 @@ static void linear_gain(void **state)
     for (size_t c = 0; c < sizeof(gain_cases) / sizeof(gain_cases[0]); ++c) {
         const GainCase *gc = &gain_cases[c];
         /* 10 kOhm load, 10 mV peak in: far below every limit. */
-        const Setting set[] = {{OS_P_GAIN, gc->gain_db},
-                               {OS_P_GBW, gc->gbw_mhz},
+        const Setting set[] = {{OS_P_GAIN, (float)gc->gain_db},
+                               {OS_P_GBW, (float)gc->gbw_mhz},
                                {OS_P_LOAD, 10000.0f},
                                {OS_P_COUNT, 0}};
         OsStage *s = make(rate, set);
@@ -100,7 +100,7 @@ static void linear_gain(void **state)
 /* --- Output current limit ------------------------------------------------ */
 
 typedef struct {
-    float load;
+    double load;
     double vout_asked; /* peak load voltage asked for */
     double max_peak;   /* the peak must stay below (0: no bound) */
     double min_peak;
@@ -128,7 +128,8 @@ static void current_limit(void **state)
     const double rate = 48000.0, f = 1000.0;
     for (size_t c = 0; c < sizeof(limit_cases) / sizeof(limit_cases[0]); ++c) {
         const LimitCase *lc = &limit_cases[c];
-        const Setting set[] = {{OS_P_LOAD, lc->load}, {OS_P_FULLSCALE, 20.0f}, {OS_P_COUNT, 0}};
+        const Setting set[] = {
+            {OS_P_LOAD, (float)lc->load}, {OS_P_FULLSCALE, 20.0f}, {OS_P_COUNT, 0}};
         OsStage *s = make(rate, set);
         /* gain 6 dB default: G = 1.995 */
         const double g = pow(10.0, 6.0 / 20.0);
@@ -141,8 +142,7 @@ static void current_limit(void **state)
         os_stage_meters(s, &m);
         printf("load %6.0f ohm, asked %5.2f V: peak %.4f V, THD %.4f %%, peak current %.4f A, "
                "limiting %.1f %% (%s)\n",
-               (double)lc->load, lc->vout_asked, peak, 100.0 * thd, m.peak_current, m.limiting,
-               lc->source);
+               lc->load, lc->vout_asked, peak, 100.0 * thd, m.peak_current, m.limiting, lc->source);
         /* In the circuit (the meter, from the oversampled simulation): the peak load
          * current and voltage obey the limit. */
         const double circuit_peak = m.peak_current * lc->load;
@@ -221,9 +221,9 @@ static void rail_clipping(void **state)
 {
     (void)state;
     const double rate = 48000.0;
-    const float rails[] = {5.0f, 12.0f, 30.0f};
+    const double rails[] = {5.0, 12.0, 30.0};
     for (size_t i = 0; i < 3; ++i) {
-        const Setting set[] = {{OS_P_LOAD, 10000.0f},   {OS_P_RAIL, rails[i]},
+        const Setting set[] = {{OS_P_LOAD, 10000.0f},   {OS_P_RAIL, (float)rails[i]},
                                {OS_P_HEADROOM, 1.5f},   {OS_P_GAIN, 20.0f},
                                {OS_P_FULLSCALE, 20.0f}, {OS_P_COUNT, 0}};
         OsStage *s = make(rate, set);
@@ -231,8 +231,7 @@ static void rail_clipping(void **state)
         const double swing = rails[i] - 1.5;
         double *v = run_volts(s, rate, 100.0, 2.0 * swing / 10.0 / 20.0, &n);
         const double peak = an_peak(v, n);
-        printf("rail %4.1f V, headroom 1.5 V: peak %.3f V (swing %.3f V)\n", (double)rails[i], peak,
-               swing);
+        printf("rail %4.1f V, headroom 1.5 V: peak %.3f V (swing %.3f V)\n", rails[i], peak, swing);
         assert_true(peak < swing * 1.01 && peak > swing * 0.97);
         free(v);
         os_stage_free(s);

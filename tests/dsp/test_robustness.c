@@ -353,12 +353,12 @@ static void extremes(void **state)
             os_stage_reset(s);
             an_run_sine(s, rates[r], 1000.0, 1.0, 0, n, v, NULL);
             const double rail = os_stage_get(s, OS_P_RAIL);
-            const double swing = fmax(rail - os_stage_get(s, OS_P_HEADROOM), 0.05 * rail);
+            const double swing = fmax(rail - (double)os_stage_get(s, OS_P_HEADROOM), 0.05 * rail);
             OsMeters m;
             os_stage_meters(s, &m);
             /* In the circuit: the load voltage stays within the swing (plus a few
              * widths of the clamp's 50 mV knee). */
-            const double vmax = m.peak_current * os_stage_get(s, OS_P_LOAD);
+            const double vmax = m.peak_current * (double)os_stage_get(s, OS_P_LOAD);
             if (!(vmax < swing + 0.25)) {
                 printf("rate %g: circuit peak %g V beyond swing %g V\n", rates[r], vmax, swing);
             }
