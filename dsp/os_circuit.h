@@ -57,12 +57,15 @@ typedef struct {
     OsOpampCoeffs op;
     double inv_g; /**< 1/G: share of the output fed back */
     double inv_rl;
-    double kx;  /**< output current per volt of x: 1 / (R_load||R_fb + Rs) */
-    double rho; /**< output voltage per volt of x: (R_load||R_fb) / (R_load||R_fb + Rs) */
-    double gamma;
-    OsBdf2 hist;
-    /* per-step context of the residual */
-    double c, vin, limit;
+    double kx;   /**< output current per volt of x: 1 / (R_load||R_fb + Rs) */
+    double rho;  /**< output voltage per volt of x: (R_load||R_fb) / (R_load||R_fb + Rs) */
+    double beta; /**< TR-BDF2 stage weight g h / 2 */
+    /* state at the last step */
+    double x;   /**< internal node, V */
+    double fx;  /**< dx/dt there, V/s */
+    double vin; /**< input voltage there, V */
+    /* context of the residual during a solve */
+    double c, vin_now, limit;
 } OsOpampStage;
 
 /** Derive coefficients for step @p h (s). Real-time safe. */

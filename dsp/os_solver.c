@@ -8,8 +8,9 @@
 double os_newton_scalar(OsScalarResidual fn, void *ctx, double guess, double lo, double hi,
                         double tol, int max_iter, int *iters)
 {
-    double x = guess;
-    if (!(x > lo && x < hi)) {
+    /* A guess outside the bracket moves to its nearer end; NaN to the middle. */
+    double x = guess < lo ? lo : guess > hi ? hi : guess;
+    if (isnan(x)) {
         x = 0.5 * (lo + hi);
     }
     int it = 0;
@@ -25,7 +26,12 @@ double os_newton_scalar(OsScalarResidual fn, void *ctx, double guess, double lo,
         } else {
             lo = x;
         }
-        double xn = x - r / d;
+        const double step = r / d;
+        if (fabs(step) <= tol) {
+            x -= step; /* converged: the last Newton step is below tolerance */
+            break;
+        }
+        double xn = x - step;
         if (!(xn > lo && xn < hi)) {
             xn = 0.5 * (lo + hi); /* Newton left the bracket (or d was bad): bisect */
         }

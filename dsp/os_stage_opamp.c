@@ -8,10 +8,10 @@
  * With the op-amp of os_opamp.h the output pin sits at vo = x - Rs io and
  * carries io = vo / Rp, Rp = R_L || (R1 + R2), hence (Ohm's and Kirchhoff's laws)
  *   io = x / (Rp + Rs),  vo = x Rp / (Rp + Rs),  vd = vin - vo / G,
- * and the circuit reduces to the one state x. BDF2 gives per step the scalar
- * equation  R(x) = x - c - gamma f(x) = 0,  strictly increasing in x because f
- * falls with x (every term of os_opamp.h does), so a safeguarded Newton
- * iteration always converges to its unique root. */
+ * and the circuit reduces to the one state x. Each TR-BDF2 stage (os_solver.h)
+ * gives the scalar equation  R(x) = x - c - beta f(x) = 0,  strictly increasing
+ * in x because f falls with x (every term of os_opamp.h does), so a safeguarded
+ * Newton iteration always converges to its unique root. */
 
 #include "os_circuit.h"
 
@@ -26,19 +26,20 @@ void os_opamp_stage_update(OsOpampStage *s, const OsCircuitParams *p, double h)
     s->inv_rl = 1.0 / p->load;
     s->kx = 1.0 / (rp + s->op.rs);
     s->rho = rp * s->kx;
-    s->gamma = os_bdf2_gamma(h);
+    s->beta = os_trbdf2_beta(h);
 }
 
 void os_opamp_stage_reset(OsOpampStage *s)
 {
-    s->hist.x0 = 0.0;
-    s->hist.x1 = 0.0;
+    s->x = 0.0;
+    s->fx = 0.0;
+    s->vin = 0.0;
     s->limit = 0.0;
 }
 
 int os_opamp_stage_ok(const OsOpampStage *s)
 {
-    return isfinite(s->hist.x0) && isfinite(s->hist.x1);
+    return isfinite(s->x) && isfinite(s->fx) && isfinite(s->vin);
 }
 
 static double residual(void *ctx, double x, double *d)
@@ -46,42 +47,63 @@ static double residual(void *ctx, double x, double *d)
     OsOpampStage *s = ctx;
     const double fb = s->rho * s->inv_g;
     OsOpampRate r;
-    os_opamp_rate(&s->op, x, s->vin - fb * x, s->kx * x, &r);
+    os_opamp_rate(&s->op, x, s->vin_now - fb * x, s->kx * x, &r);
     s->limit = r.limit;
-    *d = 1.0 - s->gamma * (r.df_dx - r.df_dvd * fb + r.df_dio * s->kx);
-    return x - s->c - s->gamma * r.f;
+    *d = 1.0 - s->beta * (r.df_dx - r.df_dvd * fb + r.df_dio * s->kx);
+    return x - s->c - s->beta * r.f;
 }
 
-void os_opamp_stage_step(OsOpampStage *s, double vin, OsStepResult *r)
+/* Solve x = c + beta f(x) at input voltage vin; returns x, adds iterations. */
+static double solve(OsOpampStage *s, double c, double vin, double guess, int *iters)
 {
     const OsOpampCoeffs *op = &s->op;
-    const double c = os_bdf2_c(&s->hist);
     const double fb = s->rho * s->inv_g;
     s->c = c;
-    s->vin = vin;
+    s->vin_now = vin;
     /* Bracket. The input stage is bounded by SR and every other term of f opposes
-     * x, so |x - c| <= gamma SR. Beyond Xc, where one clamp has reached 3 (in
+     * x, so |x - c| <= beta SR. Beyond xc, where one clamp has reached 3 (in
      * units of SR), f < 0 for x > 0 (and f > 0 for x < 0): there R has the sign of
      * x - c. Both bounds keep Newton out of the far exponential tails, where it
      * could only creep back one knee width per iteration. */
-    const double reach = 1.01 * s->gamma * op->sr + 1e-6;
+    const double reach = 1.01 * s->beta * op->sr + 1e-6;
     const double ln3 = 1.0986122886681098;
     const double xc = fmin(op->vsw + ln3 / op->inv_w, (op->ilim + ln3 / op->inv_ik) / s->kx);
     const double lo = fmax(fmin(c, 0.0) - reach, fmin(c, -xc));
     const double hi = fmin(fmax(c, 0.0) + reach, fmax(c, xc));
-    /* Guess: the solution of the loop with the input stage and clamps linear, which
-     * is exact to first order whenever the op-amp is not slewing or clipping; at
-     * long steps (low rates) it is far better than extrapolating the history. */
+    /* Guess: the solution with the input stage and clamps linear, exact to first
+     * order whenever the op-amp is neither slewing nor limiting; at long steps
+     * (low rates) far better than extrapolating. */
     const double wt = op->sr * op->kin;
-    const double x_lin = (c + s->gamma * wt * vin) / (1.0 + s->gamma * (wt * fb + op->wp));
-    const double guess =
-        fabs(op->kin * (vin - fb * x_lin)) < 0.5 ? x_lin : os_bdf2_predict(&s->hist);
+    const double x_lin = (c + s->beta * wt * vin) / (1.0 + s->beta * (wt * fb + op->wp));
+    if (fabs(op->kin * (vin - fb * x_lin)) < 0.5) {
+        guess = x_lin;
+    }
+    int it = 0;
+    const double x = os_newton_scalar(residual, s, guess, lo, hi, 1e-7, 60, &it);
+    *iters += it;
+    return x;
+}
+
+void os_opamp_stage_step(OsOpampStage *s, double vin, OsStepResult *r)
+{
     int iters = 0;
-    double x = os_newton_scalar(residual, s, guess, lo, hi, 1e-7, 60, &iters);
+    /* Trapezoidal stage to t + g h; the input is interpolated linearly. */
+    const double vin_g = s->vin + OS_TRBDF2_G * (vin - s->vin);
+    const double c1 = s->x + s->beta * s->fx;
+    const double xg = solve(s, c1, vin_g, s->x + 2.0 * s->beta * s->fx, &iters);
+    /* BDF2 stage to t + h. */
+    const double c2 = OS_TRBDF2_A * xg - OS_TRBDF2_B * s->x;
+    double x = solve(s, c2, vin, xg + (xg - s->x) * ((1.0 - OS_TRBDF2_G) / OS_TRBDF2_G), &iters);
+    double fx = (x - c2) / s->beta;
     if (fabs(x) < 1e-30) {
         x = 0.0; /* keep subnormals out of the state */
     }
-    os_bdf2_push(&s->hist, x);
+    if (fabs(fx) < 1e-30) {
+        fx = 0.0;
+    }
+    s->x = x;
+    s->fx = fx;
+    s->vin = vin;
     const double vo = s->rho * x;
     r->vload = vo;
     r->iload = vo * s->inv_rl;
