@@ -1,7 +1,7 @@
 /* Copyright 2026 outstage developers */
 /* SPDX-License-Identifier: ISC */
 
-/* Signal analysis for tests: harmonic amplitudes by correlation over whole
+/* Signal analysis for tests and measurement programs: harmonic amplitudes by correlation over whole
  * periods, THD per the IEC 60268-3 definition (rms of harmonics 2..N over the
  * rms of the fundamental), rms and peak. */
 

@@ -2,7 +2,7 @@
 /* SPDX-License-Identifier: ISC */
 
 /* The op-amp stage against published relations and trade facts. Each table row
- * names its source. THD is the IEC 60268-3 ratio (tests/common/analysis.h). */
+ * names its source. THD is the IEC 60268-3 ratio (analysis/analysis.h). */
 
 #include <setjmp.h>
 #include <stdarg.h>

@@ -1,0 +1,41 @@
+#!/usr/bin/env bash
+# Copyright 2026 outstage developers
+# SPDX-License-Identifier: ISC
+#
+# Every test: installs what is missing, builds with warnings as errors, runs the
+# whole suite, then the DSP and plugin suites again under AddressSanitizer and
+# UndefinedBehaviorSanitizer, and checks the formatting.
+set -euo pipefail
+cd "$(dirname "$0")/.."
+
+bash scripts/deps.sh
+
+configure() { # dir, options...
+  local dir=$1
+  shift
+  if [ -f "$dir/build.ninja" ]; then
+    meson setup --reconfigure "$dir" "$@" >/dev/null
+  else
+    meson setup "$dir" "$@" >/dev/null
+  fi
+}
+
+echo "== release build, all tests"
+configure build -Dbuildtype=release -Dwerror=true
+ninja -C build
+meson test -C build --print-errorlogs --num-processes 2
+
+echo "== sanitizers (address, undefined)"
+configure build-sanitize -Dbuildtype=debug -Dwerror=true -Db_sanitize=address,undefined \
+  -Db_lundef=false
+ninja -C build-sanitize
+UBSAN_OPTIONS=halt_on_error=1:print_stacktrace=1 ASAN_OPTIONS=detect_leaks=1 \
+  meson test -C build-sanitize --print-errorlogs --num-processes 2 --suite dsp --suite plugin
+
+echo "== clang-format"
+find analysis bench demo dsp plugins tests tools -name '*.[ch]' -print0 | xargs -0 clang-format --dry-run --Werror
+
+echo "== benchmark (brief, to see that it runs)"
+./build/bench/outstage-bench --seconds 0.2 >/dev/null
+
+echo "all checks passed"
