@@ -257,6 +257,11 @@ static void fill_port(const OsPortInfo *p, LADSPA_PortDescriptor *desc, const ch
     }
     if (p->type == OS_PORT_CONTROL_IN) {
         h |= default_hint(p);
+    } else {
+        /* Meaningless for an output, but sox (14.4) asks every control port,
+         * outputs included, for a value or a default: with one, users pass
+         * just the inputs by position, as the contract intends. */
+        h |= LADSPA_HINT_DEFAULT_MINIMUM;
     }
     hint->HintDescriptor = h;
     hint->LowerBound = p->min;
