@@ -153,7 +153,7 @@ static void cleanup(LADSPA_Handle instance)
  * formulas of ladspa.h; NAN if the hint does not apply to the range. */
 static double hint_value(const OsPortInfo *p, LADSPA_PortRangeHintDescriptor hint)
 {
-    const double lo = p->min, hi = p->max;
+    const double lo = (double)p->min, hi = (double)p->max;
     const int lg = (p->flags & OS_PF_LOGARITHMIC) && lo > 0.0;
     double v;
     switch (hint) {
@@ -197,7 +197,7 @@ static double hint_value(const OsPortInfo *p, LADSPA_PortRangeHintDescriptor hin
  * ranges here span decades), otherwise by difference over the range. */
 static double default_distance(const OsPortInfo *p, double v)
 {
-    const double d = p->def;
+    const double d = (double)p->def;
     if (d > 0.0) {
         return v > 0.0 ? fabs(log(v / d)) : (double)INFINITY;
     }

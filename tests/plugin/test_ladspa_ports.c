@@ -110,7 +110,7 @@ static void test_descriptors(void **state)
 static double decode_default(const LADSPA_PortRangeHint *h)
 {
     const LADSPA_PortRangeHintDescriptor d = h->HintDescriptor;
-    const double lo = h->LowerBound, hi = h->UpperBound;
+    const double lo = (double)h->LowerBound, hi = (double)h->UpperBound;
     const int lg = LADSPA_IS_HINT_LOGARITHMIC(d) != 0;
     double v;
     if (LADSPA_IS_HINT_DEFAULT_MINIMUM(d)) {

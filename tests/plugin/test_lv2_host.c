@@ -379,8 +379,8 @@ static void measure_gain(const float *in, const float *out, uint32_t lat, double
     static double xi[SPAN], xo[SPAN], r[SPAN];
     const double g = pow(10.0, ideal_db / 20.0);
     for (size_t i = 0; i < SPAN; ++i) {
-        xi[i] = in[SETTLE + i - lat];
-        xo[i] = out[SETTLE + i];
+        xi[i] = (double)in[SETTLE + i - lat];
+        xo[i] = (double)out[SETTLE + i];
         r[i] = xo[i] - g * xi[i];
     }
     *gain_db = 20.0 * log10(an_harmonic_amp(xo, SPAN, RATE, 1000.0, 1) /
@@ -540,7 +540,8 @@ static void test_meters(void **state)
     sine(in, N, a, 1000.0);
     host_run_blocks(&h, in, out, N, B);
     const double v = a * g * 1.0;
-    const double ipk = host_get(&h, "peak_current"), pw = host_get(&h, "load_power");
+    const double ipk = (double)host_get(&h, "peak_current"),
+                 pw = (double)host_get(&h, "load_power");
     print_message("clean: peak current %.4f mA (Ohm %.4f), load power %.4f mW (%.4f), "
                   "limiting %.2f %%\n",
                   ipk * 1e3, v / r * 1e3, pw * 1e3, v * v / (2 * r) * 1e3,
@@ -555,7 +556,8 @@ static void test_meters(void **state)
      * knee"); allow the knee, VT / (0.65 V / 25 mA) = 4 % of the limit. */
     sine(in, N, 1.0, 1000.0);
     host_run_blocks(&h, in, out, N, B);
-    const double ipk2 = host_get(&h, "peak_current"), lim = host_get(&h, "limiting");
+    const double ipk2 = (double)host_get(&h, "peak_current"),
+                 lim = (double)host_get(&h, "limiting");
     print_message("overdriven: peak current %.4f mA (limit 25), limiting %.2f %%\n", ipk2 * 1e3,
                   lim);
     assert_true(fabs(ipk2 / 0.025 - 1.0) < 0.04);
@@ -592,7 +594,7 @@ static void test_bypass_and_listen(void **state)
         sine(in, TOTAL, amps[k], 1000.0);
         host_run_blocks(&h, in, out, TOTAL, 256);
         for (size_t i = 0; i < SPAN; ++i) {
-            r[i] = out[SETTLE + i];
+            r[i] = (double)out[SETTLE + i];
         }
         resid[k] = 20.0 * log10(an_rms(r, SPAN) / (amps[k] / sqrt(2.0)));
         host_close(&h);
