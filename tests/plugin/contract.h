@@ -19,7 +19,9 @@ enum {
     C_ENUM = 1u << 3,    /* contract says "enumeration" */
     C_TOGGLE = 1u << 4,  /* contract unit "toggle" */
     C_ENABLED = 1u << 5, /* lv2:designation lv2:enabled */
-    C_LATENCY = 1u << 6  /* lv2:designation lv2:latency */
+    C_LATENCY = 1u << 6, /* lv2:designation lv2:latency */
+    C_NO_NOTES = 1u << 7 /* the contract's table has no notes column here, so
+                            it neither asks for nor rules out a scale */
 };
 
 typedef struct {
@@ -82,11 +84,11 @@ static const ContractPort contract_pushpull_ports[] = {
     C_COMMON_HEAD,
     {"load", "ohm", 1.0f, 100000.0f, 8.0f, C_IN | C_LOG},
     C_COMMON_TAIL,
-    {"beta", "", 10.0f, 500.0f, 70.0f, C_IN},
-    {"vbe", "V", 0.4f, 1.0f, 0.65f, C_IN},
-    {"bias", "V", 0.0f, 2.0f, 0.0f, C_IN},
-    {"emitter_r", "ohm", 0.0f, 10.0f, 0.22f, C_IN},
-    {"loop", "", 0.0f, 1.0f, 1.0f, C_IN},
+    {"beta", "", 10.0f, 500.0f, 70.0f, C_IN | C_NO_NOTES},
+    {"vbe", "V", 0.4f, 1.0f, 0.65f, C_IN | C_NO_NOTES},
+    {"bias", "V", 0.0f, 2.0f, 0.0f, C_IN | C_NO_NOTES},
+    {"emitter_r", "ohm", 0.0f, 10.0f, 0.22f, C_IN | C_NO_NOTES},
+    {"loop", "", 0.0f, 1.0f, 1.0f, C_IN | C_NO_NOTES},
     C_METERS_HEAD,
     {"dissipation", "W", 0, 0, 0, 0},
     C_LATENCY_PORT,

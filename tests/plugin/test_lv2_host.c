@@ -87,10 +87,8 @@ static void test_bundle_is_build_tree(void **state)
 
 /* Contract, "Names": URI and name; no required feature (so no inPlaceBroken);
  * hardRTCapable offered (LV2 core: run() is real-time safe). */
-static void test_identity(void **state)
+static void check_identity(const ContractStage *c)
 {
-    (void)state;
-    const ContractStage *c = opamp_contract();
     const LilvPlugin *p = find_plugin(c->uri);
     assert_non_null(p);
     assert_true(lilv_plugin_verify(p));
@@ -194,9 +192,11 @@ static void check_port(const LilvPlugin *p, const ContractPort *c, uint32_t inde
     LilvNode *log_prop = uri(LV2_PPROP "logarithmic");
     LilvNode *enum_prop = uri(LV2_CORE "enumeration");
     LilvNode *toggled = uri(LV2_CORE "toggled");
-    assert_int_equal(lilv_port_has_property(p, port, log_prop), (c->flags & C_LOG) != 0);
-    assert_int_equal(lilv_port_has_property(p, port, enum_prop), (c->flags & C_ENUM) != 0);
-    assert_int_equal(lilv_port_has_property(p, port, toggled), (c->flags & C_TOGGLE) != 0);
+    if (!(c->flags & C_NO_NOTES)) {
+        assert_int_equal(lilv_port_has_property(p, port, log_prop), (c->flags & C_LOG) != 0);
+        assert_int_equal(lilv_port_has_property(p, port, enum_prop), (c->flags & C_ENUM) != 0);
+        assert_int_equal(lilv_port_has_property(p, port, toggled), (c->flags & C_TOGGLE) != 0);
+    }
     lilv_node_free(log_prop);
     lilv_node_free(enum_prop);
     lilv_node_free(toggled);
@@ -232,10 +232,8 @@ static void check_port(const LilvPlugin *p, const ContractPort *c, uint32_t inde
 
 /* Contract: "one audio input in, one audio output out, then the control ports
  * below, in this order", then the outputs; symbols, ranges, defaults, units. */
-static void test_ports_match_contract(void **state)
+static void check_ports(const ContractStage *c)
 {
-    (void)state;
-    const ContractStage *c = opamp_contract();
     const LilvPlugin *p = find_plugin(c->uri);
     assert_non_null(p);
     assert_int_equal(lilv_plugin_get_num_ports(p), c->n_ports);
@@ -265,10 +263,8 @@ static void test_ports_match_contract(void **state)
 
 /* Contract: enable carries lv2:designation lv2:enabled, latency lv2:latency;
  * LV2 core also asks for lv2:reportsLatency on a latency port. */
-static void test_designations(void **state)
+static void check_designations(const ContractStage *c)
 {
-    (void)state;
-    const ContractStage *c = opamp_contract();
     const LilvPlugin *p = find_plugin(c->uri);
     assert_non_null(p);
     LilvNode *in = uri(LV2_CORE "InputPort"), *out = uri(LV2_CORE "OutputPort");
@@ -291,6 +287,60 @@ static void test_designations(void **state)
     lilv_node_free(enabled);
     lilv_node_free(latency);
     lilv_node_free(reports);
+}
+
+/* The contract stage's kind in the library, by its LADSPA label. */
+static OsStageKind kind_of(const ContractStage *c)
+{
+    for (int k = 0; k < OS_STAGE_COUNT; ++k) {
+        if (strcmp(os_stage_info((OsStageKind)k)->label, c->ladspa_label) == 0) {
+            return (OsStageKind)k;
+        }
+    }
+    fail_msg("contract stage %s unknown to the library", c->uri);
+    return OS_STAGE_COUNT;
+}
+
+/* Every stage the library offers is in the bundle (its TTL and manifest), and
+ * no other: a stage made available without a manifest entry fails here. */
+static void test_stage_set(void **state)
+{
+    (void)state;
+    for (unsigned s = 0; s < CONTRACT_N_STAGES; ++s) {
+        const ContractStage *c = &contract_stages[s];
+        const int want = os_stage_available(kind_of(c)) != 0;
+        print_message("%s: library %s, bundle %s\n", c->uri, want ? "has it" : "lacks it",
+                      find_plugin(c->uri) ? "has it" : "lacks it");
+        assert_int_equal(find_plugin(c->uri) != NULL, want);
+    }
+}
+
+/* The descriptive checks, for every stage the bundle holds. */
+static void for_each_available(void (*check)(const ContractStage *))
+{
+    for (unsigned s = 0; s < CONTRACT_N_STAGES; ++s) {
+        if (os_stage_available(kind_of(&contract_stages[s]))) {
+            check(&contract_stages[s]);
+        }
+    }
+}
+
+static void test_identity(void **state)
+{
+    (void)state;
+    for_each_available(check_identity);
+}
+
+static void test_ports_match_contract(void **state)
+{
+    (void)state;
+    for_each_available(check_ports);
+}
+
+static void test_designations(void **state)
+{
+    (void)state;
+    for_each_available(check_designations);
 }
 
 /* ---- running the plugin ---- */
@@ -614,6 +664,7 @@ int main(int argc, char **argv)
     bundle_dir = argv[1];
     const struct CMUnitTest tests[] = {
         cmocka_unit_test(test_bundle_is_build_tree),
+        cmocka_unit_test(test_stage_set),
         cmocka_unit_test(test_identity),
         cmocka_unit_test(test_ports_match_contract),
         cmocka_unit_test(test_designations),
