@@ -7,8 +7,10 @@
 
 #include <math.h>
 
-/* Below this argument exp(u) < 1e-17 and the term cannot change a double sum. */
-#define EXP_NEGLIGIBLE (-40.0)
+/* Below this argument exp(u) < 2.1e-9: a clamp term this small moves the
+ * internal node by under 2.1e-9 x SR x h per step (0.2 nV at 0.5 V/us and
+ * 192 kHz), far below the solver's 0.1 uV tolerance, so it is skipped. */
+#define EXP_NEGLIGIBLE (-20.0)
 
 double os_exp_lim(double u, double *d)
 {
@@ -43,7 +45,9 @@ void os_opamp_coeffs(const OsOpampParams *p, OsOpampCoeffs *c)
 
 void os_opamp_rate(const OsOpampCoeffs *c, double x, double vd, double io, OsOpampRate *r)
 {
-    const double t = tanh(c->kin * vd);
+    /* tanh(u) = 1 - 2 / (1 + e^(2u)): one exp instead of the library's tanh;
+     * absolute error about 1e-16, saturating cleanly to +-1 for large |u|. */
+    const double t = 1.0 - 2.0 / (1.0 + exp(fmin(2.0 * c->kin * vd, 700.0)));
     double dp, dn;
 
     /* Current limiter: diverted drive on each polarity. */

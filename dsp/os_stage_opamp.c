@@ -17,6 +17,16 @@
 
 #include <math.h>
 
+static inline double min2(double a, double b)
+{
+    return a < b ? a : b;
+}
+
+static inline double max2(double a, double b)
+{
+    return a > b ? a : b;
+}
+
 void os_opamp_stage_update(OsOpampStage *s, const OsCircuitParams *p, double h)
 {
     const OsOpampParams op = {p->gbw, p->slew, p->rail, p->headroom, p->ilimit};
@@ -67,9 +77,9 @@ static double solve(OsOpampStage *s, double c, double vin, double guess, int *it
      * could only creep back one knee width per iteration. */
     const double reach = 1.01 * s->beta * op->sr + 1e-6;
     const double ln3 = 1.0986122886681098;
-    const double xc = fmin(op->vsw + ln3 / op->inv_w, (op->ilim + ln3 / op->inv_ik) / s->kx);
-    const double lo = fmax(fmin(c, 0.0) - reach, fmin(c, -xc));
-    const double hi = fmin(fmax(c, 0.0) + reach, fmax(c, xc));
+    const double xc = min2(op->vsw + ln3 / op->inv_w, (op->ilim + ln3 / op->inv_ik) / s->kx);
+    const double lo = max2(min2(c, 0.0) - reach, min2(c, -xc));
+    const double hi = min2(max2(c, 0.0) + reach, max2(c, xc));
     /* Guess: the solution with the input stage and clamps linear, exact to first
      * order whenever the op-amp is neither slewing nor limiting; at long steps
      * (low rates) far better than extrapolating. */
