@@ -12,6 +12,7 @@
 #ifndef OS_CIRCUIT_H
 #define OS_CIRCUIT_H
 
+#include "os_bjt.h"
 #include "os_opamp.h"
 #include "os_solver.h"
 
@@ -76,6 +77,40 @@ void os_opamp_stage_reset(OsOpampStage *s);
 void os_opamp_stage_step(OsOpampStage *s, double vin, OsStepResult *r);
 /** Whether the state is finite. */
 int os_opamp_stage_ok(const OsOpampStage *s);
+
+/** Unknowns of the push-pull stage, in the order of its Newton system. */
+enum { PP_X = 0, PP_VO, PP_OUT, PP_VBE_N, PP_VEB_P, PP_DIM };
+
+/** The push-pull stage: the op-amp drives the joined bases of a complementary
+ *  emitter-follower pair into the load. */
+typedef struct {
+    OsOpampCoeffs op;
+    OsBjt q; /**< both transistors (matched, complementary) */
+    double inv_g;
+    double g_load; /**< 1 / R_load */
+    double g_fb;   /**< 1 / (R1 + R2) */
+    double re;     /**< emitter resistor, ohm */
+    double half_bias;
+    double rail;
+    int loop;    /**< 1: feedback from the load */
+    double h;    /**< oversampled step, s */
+    double beta; /**< TR-BDF2 weight of the step being taken */
+    /* state at the last step */
+    double z[PP_DIM];
+    double fx, vin;
+    int fresh; /**< no step since reset: find the operating point */
+    /* context during a solve */
+    double c, vin_now, limit;
+} OsPushpullStage;
+
+/** Derive coefficients for step @p h (s). Real-time safe. */
+void os_pushpull_stage_update(OsPushpullStage *s, const OsCircuitParams *p, double h);
+/** Clear the state. Real-time safe. */
+void os_pushpull_stage_reset(OsPushpullStage *s);
+/** One step with input voltage @p vin. Real-time safe. */
+void os_pushpull_stage_step(OsPushpullStage *s, double vin, OsStepResult *r);
+/** Whether the state is finite. */
+int os_pushpull_stage_ok(const OsPushpullStage *s);
 
 #ifdef __cplusplus
 }

@@ -122,7 +122,7 @@ static const OsStageInfo stage_infos[OS_STAGE_COUNT] = {
 
 int os_stage_available(OsStageKind kind)
 {
-    return kind == OS_STAGE_OPAMP;
+    return kind == OS_STAGE_OPAMP || kind == OS_STAGE_PUSHPULL;
 }
 
 const OsStageInfo *os_stage_info(OsStageKind kind)

@@ -55,6 +55,7 @@ struct OsStage {
     OsOversampler os;
 
     OsOpampStage opamp;
+    OsPushpullStage pushpull;
 
     /* latency-aligned dry path */
     float *dry;
@@ -110,7 +111,11 @@ static void derive(OsStage *s)
     p->emitter_r = ramp_value(&r[OS_P_EMITTER_R]);
     p->loop = ramp_value(&r[OS_P_LOOP]);
     const double h = 1.0 / (s->rate * s->os.factor);
-    os_opamp_stage_update(&s->opamp, p, h);
+    if (s->kind == OS_STAGE_PUSHPULL) {
+        os_pushpull_stage_update(&s->pushpull, p, h);
+    } else {
+        os_opamp_stage_update(&s->opamp, p, h);
+    }
 }
 
 static void ramp_jump(Ramp *r)
@@ -150,6 +155,7 @@ static void clear_signal_state(OsStage *s)
 {
     os_oversampler_init(&s->os, &s->design, s->os.factor);
     os_opamp_stage_reset(&s->opamp);
+    os_pushpull_stage_reset(&s->pushpull);
     memset(s->dry, 0, s->dry_len * sizeof(float));
     s->dry_pos = 0;
 }
@@ -340,6 +346,8 @@ static void process(OsStage *s, const float *in, float *out, double *vload, uint
     uint32_t limited = 0, steps = 0;
     const int factor = s->os.factor;
     const double inv_factor = 1.0 / factor;
+    const int pushpull = s->kind == OS_STAGE_PUSHPULL;
+    double dissipation = 0.0;
 
     for (uint32_t i = 0; i < n; ++i) {
         if (s->ramping) {
@@ -356,10 +364,15 @@ static void process(OsStage *s, const float *in, float *out, double *vload, uint
         double psum = 0.0;
         for (int k = 0; k < factor; ++k) {
             OsStepResult r;
-            os_opamp_stage_step(&s->opamp, y[k], &r);
+            if (pushpull) {
+                os_pushpull_stage_step(&s->pushpull, y[k], &r);
+            } else {
+                os_opamp_stage_step(&s->opamp, y[k], &r);
+            }
             y[k] = r.vload;
             peak = fmax(peak, fabs(r.iload));
             psum += r.vload * r.iload;
+            dissipation += r.dissipation;
             limited += (uint32_t)r.limiting;
             iters += r.iters;
         }
@@ -396,14 +409,14 @@ static void process(OsStage *s, const float *in, float *out, double *vload, uint
 
     /* A state that is not finite can only come from a fault; start afresh
      * rather than output silence forever. */
-    if (!os_opamp_stage_ok(&s->opamp)) {
+    if (!(pushpull ? os_pushpull_stage_ok(&s->pushpull) : os_opamp_stage_ok(&s->opamp))) {
         clear_signal_state(s);
     }
 
     s->meters.peak_current = peak;
     s->meters.limiting = steps ? 100.0 * limited / steps : 0.0;
     s->meters.load_power = n ? power / n : 0.0;
-    s->meters.dissipation = 0.0;
+    s->meters.dissipation = steps ? dissipation / steps : 0.0;
     s->meters.newton_iters = steps ? iters / steps : 0.0;
 #ifdef OS_HAVE_MXCSR
     _mm_setcsr(csr);
