@@ -11,7 +11,8 @@
  *   error = sqrt(sum |H_plugin,k - H_spice,k|^2) / sqrt(sum |H_spice,k|^2).
  *
  * Environment: OS_NGSPICE the ngspice executable (empty: not found, the test
- * is skipped), OS_SPICE_TEMPLATE the netlist template. OS_SPICE_KEEP=1 keeps
+ * is skipped), OS_SPICE_DIR the directory of the netlist templates
+ * (tests/spice). OS_SPICE_KEEP=1 keeps
  * the temporary directory with the netlist, the log and the waveform. An
  * argument selects cases by name (cmocka filter, e.g. "opamp_slew"). */
 
@@ -22,20 +23,15 @@
 
 #include <cmocka.h>
 
-#include <errno.h>
-#include <fcntl.h>
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
-#include <sys/stat.h>
-#include <sys/types.h>
-#include <sys/wait.h>
-#include <unistd.h>
 
 #include "analysis.h"
 #include "os_opamp.h"
 #include "outstage.h"
+#include "spice_util.h"
 
 /* Host rate of every case (Hz). */
 #define HOST_RATE 48000.0
@@ -52,8 +48,6 @@
  * within this share, or the whole-period Fourier coefficients are not those
  * of the steady state. */
 #define STEADY_TOL 1e-4
-/* Exit status that meson reads as "skipped". */
-#define EXIT_SKIP 77
 
 /* One comparison. Parameters are in port units (os_stage_set). */
 typedef struct {
@@ -91,170 +85,33 @@ typedef struct {
 
 static CaseState states[N_CASES];
 static const char *ngspice_path;
-static const char *template_path;
-
-/* ---- netlist generation --------------------------------------------------- */
-
-typedef struct {
-    const char *name;
-    char value[96];
-} Subst;
-
-static void put(Subst *s, int *n, const char *name, const char *fmt, ...)
-{
-    va_list ap;
-    va_start(ap, fmt);
-    s[*n].name = name;
-    vsnprintf(s[*n].value, sizeof(s[*n].value), fmt, ap);
-    va_end(ap);
-    ++*n;
-}
-
-static char *read_text(const char *path)
-{
-    FILE *f = fopen(path, "rb");
-    if (!f) {
-        return NULL;
-    }
-    size_t cap = 4096, len = 0;
-    char *buf = malloc(cap);
-    size_t got;
-    while (buf && (got = fread(buf + len, 1, cap - len - 1, f)) > 0) {
-        len += got;
-        if (cap - len - 1 == 0) {
-            char *nb = realloc(buf, cap * 2);
-            if (!nb) {
-                free(buf);
-                buf = NULL;
-                break;
-            }
-            buf = nb;
-            cap *= 2;
-        }
-    }
-    fclose(f);
-    if (buf) {
-        buf[len] = '\0';
-    }
-    return buf;
-}
-
-/* Copy the template to @p out with every @NAME@ replaced; an unknown
- * placeholder is an error so the template and this file cannot drift apart. */
-static int write_netlist(const char *tmpl, const Subst *subst, int n, const char *out)
-{
-    FILE *f = fopen(out, "w");
-    if (!f) {
-        return -1;
-    }
-    int rc = 0;
-    const char *p = tmpl;
-    while (*p) {
-        const char *at = strchr(p, '@');
-        if (!at) {
-            fputs(p, f);
-            break;
-        }
-        fwrite(p, 1, (size_t)(at - p), f);
-        const char *end = strchr(at + 1, '@');
-        const size_t len = end ? (size_t)(end - at - 1) : 0;
-        int found = -1;
-        for (int i = 0; i < n && end; ++i) {
-            if (strlen(subst[i].name) == len && strncmp(subst[i].name, at + 1, len) == 0) {
-                found = i;
-            }
-        }
-        if (found < 0) {
-            fprintf(stderr, "test_spice: unknown placeholder at \"%.20s\" in %s\n", at,
-                    template_path);
-            rc = -1;
-            break;
-        }
-        fputs(subst[found].value, f);
-        p = end + 1;
-    }
-    if (fclose(f) != 0) {
-        rc = -1;
-    }
-    return rc;
-}
-
-/* ---- running ngspice ------------------------------------------------------ */
-
-/* Run "ngspice -b NETLIST" in @p dir, output to @p log; the exit status. */
-static int run_ngspice(const char *dir, const char *netlist, const char *log)
-{
-    const pid_t pid = fork();
-    if (pid < 0) {
-        return -1;
-    }
-    if (pid == 0) {
-        if (chdir(dir) != 0) {
-            _exit(126);
-        }
-        const int in = open("/dev/null", O_RDONLY);
-        const int fd = open(log, O_WRONLY | O_CREAT | O_TRUNC, 0644);
-        if (in < 0 || fd < 0) {
-            _exit(126);
-        }
-        dup2(in, STDIN_FILENO);
-        dup2(fd, STDOUT_FILENO);
-        dup2(fd, STDERR_FILENO);
-        close(in);
-        close(fd);
-        execl(ngspice_path, "ngspice", "-b", netlist, (char *)NULL);
-        _exit(127);
-    }
-    int status = 0;
-    while (waitpid(pid, &status, 0) < 0) {
-        if (errno != EINTR) {
-            return -1;
-        }
-    }
-    return WIFEXITED(status) ? WEXITSTATUS(status) : -1;
-}
-
-static void print_log_tail(const char *path)
-{
-    char *text = read_text(path);
-    if (!text) {
-        return;
-    }
-    const size_t len = strlen(text);
-    fprintf(stderr, "--- %s (end) ---\n%s\n---\n", path, text + (len > 2000 ? len - 2000 : 0));
-    free(text);
-}
+static char template_path[1024];
 
 /* Read ngspice's wrdata file: a header line, then rows "time v(out) v(in)" on
  * the uniform grid of step dt. Checks that row j sits at time j dt. */
 static double *read_wave(const char *path, double dt, size_t rows, double **vin)
 {
-    FILE *f = fopen(path, "r");
-    if (!f) {
+    size_t got = 0;
+    double *t = sp_read_table(path, 3, &got);
+    if (!t || got < rows) {
+        fprintf(stderr, "test_spice: %s: %zu of %zu rows read\n", path, got, rows);
+        free(t);
         return NULL;
     }
     double *v = malloc(rows * sizeof(*v));
     double *u = malloc(rows * sizeof(*u));
-    char line[512];
-    size_t j = 0;
-    int ok = v && u && fgets(line, sizeof(line), f) != NULL;
-    while (ok && j < rows) {
-        double t, a, b;
-        if (fscanf(f, "%lf %lf %lf", &t, &a, &b) != 3) {
-            break;
-        }
-        if (fabs(t - (double)j * dt) > 1e-3 * dt) {
-            fprintf(stderr, "test_spice: row %zu at t = %.15g s, expected %.15g s\n", j, t,
+    int ok = v && u;
+    for (size_t j = 0; ok && j < rows; ++j) {
+        if (fabs(t[3 * j] - (double)j * dt) > 1e-3 * dt) {
+            fprintf(stderr, "test_spice: row %zu at t = %.15g s, expected %.15g s\n", j, t[3 * j],
                     (double)j * dt);
             ok = 0;
         }
-        v[j] = a;
-        u[j] = b;
-        ++j;
+        v[j] = t[3 * j + 1];
+        u[j] = t[3 * j + 2];
     }
-    fclose(f);
-    if (!ok || j < rows) {
-        fprintf(stderr, "test_spice: %s: %zu of %zu rows read\n", path, j, rows);
+    free(t);
+    if (!ok) {
         free(v);
         free(u);
         return NULL;
@@ -342,31 +199,15 @@ static double *run_stage(const SpiceCase *c, int factor, uint32_t *latency)
 static int setup(void **state)
 {
     CaseState *st = *state;
-    const char *tmp = getenv("TMPDIR");
-    snprintf(st->dir, sizeof(st->dir), "%s/outstage-spice-XXXXXX", tmp && *tmp ? tmp : "/tmp");
-    if (!mkdtemp(st->dir)) {
-        fprintf(stderr, "test_spice: mkdtemp %s: %s\n", st->dir, strerror(errno));
-        return -1;
-    }
     st->passed = 0;
-    return 0;
+    return sp_mkdtemp(st->dir, sizeof(st->dir), "spice");
 }
 
 static int teardown(void **state)
 {
     CaseState *st = *state;
-    const char *keep = getenv("OS_SPICE_KEEP");
-    if (!st->passed || (keep && strcmp(keep, "1") == 0)) {
-        fprintf(stderr, "test_spice: %s: files kept in %s\n", st->c->name, st->dir);
-        return 0;
-    }
     static const char *const files[] = {"opamp_stage.cir", "ngspice.log", "wave.txt"};
-    char path[512];
-    for (size_t i = 0; i < sizeof(files) / sizeof(files[0]); ++i) {
-        snprintf(path, sizeof(path), "%s/%s", st->dir, files[i]);
-        unlink(path);
-    }
-    rmdir(st->dir);
+    sp_cleanup(st->dir, files, sizeof(files) / sizeof(files[0]), !st->passed, st->c->name);
     return 0;
 }
 
@@ -407,47 +248,40 @@ static void test_case(void **state)
     snprintf(log, sizeof(log), "%s/ngspice.log", st->dir);
     snprintf(wave, sizeof(wave), "%s/wave.txt", st->dir);
 
-    Subst sub[32];
-    int ns = 0;
-    put(sub, &ns, "VIN_AMP", "%.17g", vin_amp);
-    put(sub, &ns, "FREQ", "%.17g", c->freq);
-    put(sub, &ns, "GAIN_DB", "%.17g", gain_db);
-    put(sub, &ns, "RAIL", "%.17g", rail);
-    put(sub, &ns, "HEADROOM", "%.17g", headroom);
-    put(sub, &ns, "ILIMIT", "%.17g", ilimit);
-    put(sub, &ns, "RLOAD", "%.17g", load);
-    put(sub, &ns, "GBW", "%.17g", gbw);
-    put(sub, &ns, "SLEW", "%.17g", slew);
-    put(sub, &ns, "OS_OPAMP_A0", "%.17g", OS_OPAMP_A0);
-    put(sub, &ns, "OS_VSENSE", "%.17g", OS_VSENSE);
-    put(sub, &ns, "OS_SWING_KNEE", "%.17g", OS_SWING_KNEE);
-    put(sub, &ns, "OS_SWING_MIN_SHARE", "%.17g", OS_SWING_MIN_SHARE);
-    put(sub, &ns, "OS_EXP_MAX", "%.17g", OS_EXP_MAX);
+    SpSubst sub = {.n = 0};
+    sp_put(&sub, "VIN_AMP", "%.17g", vin_amp);
+    sp_put(&sub, "FREQ", "%.17g", c->freq);
+    sp_put(&sub, "GAIN_DB", "%.17g", gain_db);
+    sp_put(&sub, "RAIL", "%.17g", rail);
+    sp_put(&sub, "HEADROOM", "%.17g", headroom);
+    sp_put(&sub, "ILIMIT", "%.17g", ilimit);
+    sp_put(&sub, "RLOAD", "%.17g", load);
+    sp_put(&sub, "GBW", "%.17g", gbw);
+    sp_put(&sub, "SLEW", "%.17g", slew);
+    sp_put(&sub, "OS_OPAMP_A0", "%.17g", OS_OPAMP_A0);
+    sp_put(&sub, "OS_VSENSE", "%.17g", OS_VSENSE);
+    sp_put(&sub, "OS_SWING_KNEE", "%.17g", OS_SWING_KNEE);
+    sp_put(&sub, "OS_SWING_MIN_SHARE", "%.17g", OS_SWING_MIN_SHARE);
+    sp_put(&sub, "OS_EXP_MAX", "%.17g", OS_EXP_MAX);
     /* G = 1 (0 dB): no R2, fb joined to out. */
-    put(sub, &ns, "FEEDBACK_R2", "%s", gain_db == 0.0 ? "Vfb out fb 0" : "R2 out fb {r2}");
-    put(sub, &ns, "TSTEP", "%.17g", dt);
-    put(sub, &ns, "TMAX", "%.17g", dt);
-    put(sub, &ns, "TSTOP", "%.17g", tstop);
-    put(sub, &ns, "OUTFILE", "%s", wave);
+    sp_put(&sub, "FEEDBACK_R2", "%s", gain_db == 0.0 ? "Vfb out fb 0" : "R2 out fb {r2}");
+    sp_put(&sub, "TSTEP", "%.17g", dt);
+    sp_put(&sub, "TMAX", "%.17g", dt);
+    sp_put(&sub, "TSTOP", "%.17g", tstop);
+    sp_put(&sub, "OUTFILE", "%s", wave);
 
-    char *tmpl = read_text(template_path);
-    if (!tmpl) {
-        fail_msg("cannot read the netlist template %s", template_path);
-    }
-    const int wrote = write_netlist(tmpl, sub, ns, netlist);
-    free(tmpl);
-    assert_int_equal(wrote, 0);
+    assert_int_equal(sp_write_netlist(template_path, &sub, netlist), 0);
 
     /* Reference: ngspice-39, batch mode, on the same circuit. */
-    const int rc = run_ngspice(st->dir, "opamp_stage.cir", log);
+    const int rc = sp_run(ngspice_path, st->dir, "opamp_stage.cir", log);
     if (rc != 0) {
-        print_log_tail(log);
+        sp_print_log_tail(log);
         fail_msg("ngspice exited with status %d", rc);
     }
     double *spice_in = NULL;
     double *spice = read_wave(wave, dt, rows, &spice_in);
     if (!spice) {
-        print_log_tail(log);
+        sp_print_log_tail(log);
         fail_msg("no usable waveform from ngspice in %s", wave);
     }
     /* The netlist's source is the sine the stage sees, on the expected time
@@ -513,40 +347,20 @@ static void test_case(void **state)
     st->passed = 1;
 }
 
-/* ngspice from OS_NGSPICE (set by meson; empty when not found) or from PATH. */
-static const char *find_ngspice(void)
-{
-    const char *env = getenv("OS_NGSPICE");
-    if (env) {
-        return *env && access(env, X_OK) == 0 ? env : NULL;
-    }
-    const char *path = getenv("PATH");
-    static char buf[1024];
-    while (path && *path) {
-        const char *end = strchr(path, ':');
-        const size_t len = end ? (size_t)(end - path) : strlen(path);
-        snprintf(buf, sizeof(buf), "%.*s/ngspice", (int)len, path);
-        if (len > 0 && access(buf, X_OK) == 0) {
-            return buf;
-        }
-        path = end ? end + 1 : NULL;
-    }
-    return NULL;
-}
-
 int main(int argc, char **argv)
 {
-    ngspice_path = find_ngspice();
+    ngspice_path = sp_find_ngspice();
     if (!ngspice_path) {
         printf("SKIP: ngspice not found (install the Debian package ngspice); the op-amp "
                "stage is not compared with the reference simulator\n");
-        return EXIT_SKIP;
+        return SP_EXIT_SKIP;
     }
-    template_path = getenv("OS_SPICE_TEMPLATE");
-    if (!template_path || !*template_path) {
-        fprintf(stderr, "test_spice: OS_SPICE_TEMPLATE (the netlist template) is not set\n");
+    const char *dir = getenv("OS_SPICE_DIR");
+    if (!dir || !*dir) {
+        fprintf(stderr, "test_spice: OS_SPICE_DIR (where the netlist templates are) is not set\n");
         return 1;
     }
+    snprintf(template_path, sizeof(template_path), "%s/opamp_stage.cir.in", dir);
     struct CMUnitTest tests[N_CASES];
     for (size_t i = 0; i < N_CASES; ++i) {
         states[i].c = &cases[i];
