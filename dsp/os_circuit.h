@@ -78,6 +78,15 @@ void os_opamp_stage_step(OsOpampStage *s, double vin, OsStepResult *r);
 /** Whether the state is finite. */
 int os_opamp_stage_ok(const OsOpampStage *s);
 
+/** Network evaluations the push-pull stage may spend on one oversampled step
+ *  beyond its fast path (2 x 12); a gentle step takes 4 to 10. Settings far
+ *  outside physical sense (2 V of bias across junctions whose vbe is 0.4 V with
+ *  no emitter resistors: gigaamperes of idle current) can make Newton work hard;
+ *  the cap keeps the cost of any step bounded, holding the last good network
+ *  solution once it is spent. */
+#define OS_PUSHPULL_STEP_BUDGET 300
+#define OS_PUSHPULL_FAST_EVALS 24
+
 /** Unknowns of the push-pull stage, in the order of its Newton system. */
 enum { PP_X = 0, PP_VO, PP_OUT, PP_VBE_N, PP_VEB_P, PP_DIM };
 
@@ -95,12 +104,14 @@ typedef struct {
     int loop;    /**< 1: feedback from the load */
     double h;    /**< oversampled step, s */
     double beta; /**< TR-BDF2 weight of the step being taken */
-    /* state at the last step */
+    /* state at the last step: x and the network (vo, out, vbe_n, veb_p) */
     double z[PP_DIM];
     double fx, vin;
-    int fresh; /**< no step since reset: find the operating point */
-    /* context during a solve */
-    double c, vin_now, limit;
+    int fresh; /**< no step since reset: find the operating point first */
+    /* the last network solution, at x = xy: warm start of the next solve */
+    double y[PP_DIM - 1];
+    double xy;
+    double limit; /**< op-amp limiter share at the last evaluation */
 } OsPushpullStage;
 
 /** Derive coefficients for step @p h (s). Real-time safe. */

@@ -24,7 +24,7 @@
  *     turn-on voltage,
  * Vsw = rail - headroom (at least OS_SWING_MIN_SHARE x rail), w the knee width
  *     of the swing clamp,
- * E(u) = exp(u), continued linearly above OS_EXP_MAX so it cannot overflow.
+ * E(u) = exp(u), continued linearly above OS_EXP_MAX.
  *
  * The clamps are scaled by SR, so at full overdrive they balance the saturated
  * input stage exactly at io = Ilim and x = Vsw, and x never winds up beyond
@@ -50,8 +50,12 @@ extern "C" {
 #define OS_SWING_KNEE 0.05
 /** The swing never shrinks below this share of the rail, so every setting is valid. */
 #define OS_SWING_MIN_SHARE 0.05
-/** Linear continuation point of the exponentials. */
-#define OS_EXP_MAX 30.0
+/** Linear continuation point of the clamp exponentials. A converged solution
+ *  never needs E above about 3 (the clamps balance an input stage bounded by
+ *  SR), so continuing linearly above E = exp(8) = 2981 changes no solution; it
+ *  keeps Newton iterates out of a far exponential tail, down which they could
+ *  only creep one unit of the exponent per iteration, and prevents overflow. */
+#define OS_EXP_MAX 8.0
 /** Boltzmann constant (J/K), elementary charge (C), 27 degC in kelvin (CODATA 2018). */
 #define OS_BOLTZMANN 1.380649e-23
 #define OS_CHARGE 1.602176634e-19

@@ -9,26 +9,38 @@
  * R1 + R2 = OS_FEEDBACK_TOTAL (gain G = 1 + R2/R1) hangs on the op-amp pin
  * (loop = 0) or on the output (loop = 1).
  *
- * Unknowns z = (x, vo, out, vbe_n, veb_p); residuals (Kirchhoff's laws, the
- * op-amp's TR-BDF2 stage equation, Ebers-Moll currents of os_bjt.h):
- *   R1 = x - c - beta f(x, vd, io)        vd = vin - v_fb / G
- *   R2 = vo - x + Rs io                    io = Ib_n - Ib_p (+ vo / Rfb, loop 0)
- *   R3 = Ie_n - Ie_p - out / R_L (- out / Rfb, loop 1)
- *   R4 = vo + bias/2 - vbe_n - R_e Ie_n - out
- *   R5 = vo - bias/2 + veb_p + R_e Ie_p - out
- * with vbc_n = vo + bias/2 - rail and vcb_p = -rail - (vo - bias/2). Solved by
- * Newton-Raphson with SPICE's junction limiting on vbe_n, veb_p and the same
- * logarithmic limiting on the op-amp's swing clamp. */
+ * The one state is the op-amp's internal node x. Given x, the rest is a static
+ * network (Kirchhoff's laws with the Ebers-Moll currents of os_bjt.h) in
+ * y = (vo, out, vbe_n, veb_p):
+ *   F0 = vo - x + Rs io                    io = Ib_n - Ib_p (+ vo / Rfb, loop 0)
+ *   F1 = Ie_n - Ie_p - out / R_L (- out / Rfb, loop 1)
+ *   F2 = vo + bias/2 - vbe_n - R_e Ie_n - out
+ *   F3 = vo - bias/2 + veb_p + R_e Ie_p - out
+ * with vbc_n = vo + bias/2 - rail and vcb_p = -rail - (vo - bias/2). It is
+ * solved by Newton-Raphson with SPICE's junction limiting, continuing from the
+ * last solution in smaller moves of x if a direct solve fails (source stepping).
+ *
+ * Each TR-BDF2 stage then needs x with R(x) = x - c - beta f(x, vd, io) = 0,
+ * vd = vin - v_fb / G, v_fb = vo (loop 0) or out (loop 1). Raising x raises vo,
+ * out and the op-amp's output current, and every term of f falls with those, so
+ * R increases strictly with x, and the safeguarded scalar Newton iteration of
+ * os_solver.h (the same as the op-amp stage's) converges from any guess. Its
+ * derivative comes from the inner Jacobian: dy/dx = J^-1 e0. */
 
 #include "os_circuit.h"
 
 #include <math.h>
 #include <string.h>
 
-#define MAX_ITER 20
-#define MAX_ITER_FRESH 200
-#define TOL 1e-7 /* V */
-#define MAX_DEPTH 5
+enum { Y_VO = 0, Y_OUT, Y_VBE, Y_VEB, Y_DIM };
+
+#define INNER_ITER 40
+#define INNER_TOL 1e-10 /* V */
+#define OUTER_TOL 1e-7  /* V */
+#define OUTER_ITER 60
+#define MAX_HALVINGS 8 /* source stepping: up to 256 moves of x */
+#define FAST_ITER (OS_PUSHPULL_FAST_EVALS / 2)
+#define STEP_BUDGET OS_PUSHPULL_STEP_BUDGET
 
 void os_pushpull_stage_update(OsPushpullStage *s, const OsCircuitParams *p, double h)
 {
@@ -49,6 +61,8 @@ void os_pushpull_stage_update(OsPushpullStage *s, const OsCircuitParams *p, doub
 void os_pushpull_stage_reset(OsPushpullStage *s)
 {
     memset(s->z, 0, sizeof(s->z));
+    memset(s->y, 0, sizeof(s->y));
+    s->xy = 0.0;
     s->fx = 0.0;
     s->vin = 0.0;
     s->limit = 0.0;
@@ -64,198 +78,319 @@ int os_pushpull_stage_ok(const OsPushpullStage *s)
     return ok;
 }
 
-/* Both transistors at z. */
-static void transistors(const OsPushpullStage *s, const double *z, OsBjtEval *n, OsBjtEval *p)
+/* Both transistors at y. */
+static void transistors(const OsPushpullStage *s, const double *y, OsBjtEval *n, OsBjtEval *p)
 {
-    const double vo = z[PP_VO];
-    os_bjt_eval(&s->q, z[PP_VBE_N], vo + s->half_bias - s->rail, n);
-    os_bjt_eval(&s->q, z[PP_VEB_P], -s->rail - (vo - s->half_bias), p);
+    const double vo = y[Y_VO];
+    os_bjt_eval(&s->q, y[Y_VBE], vo + s->half_bias - s->rail, n);
+    os_bjt_eval(&s->q, y[Y_VEB], -s->rail - (vo - s->half_bias), p);
 }
 
-static void residual(OsPushpullStage *s, const double *z, double *f, double *j)
+/* The op-amp's output current and its partial derivatives by vo, vbe_n, veb_p
+ * (vbc_n moves with vo, vcb_p against it). */
+typedef struct {
+    double io, d_vo, d_vbe, d_veb;
+} Drive;
+
+static Drive drive_current(const OsPushpullStage *s, const double *y, const OsBjtEval *n,
+                           const OsBjtEval *p)
+{
+    const double gfb_o = s->loop ? 0.0 : s->g_fb;
+    Drive d;
+    d.io = n->ib - p->ib + gfb_o * y[Y_VO];
+    d.d_vo = n->dib_dvbc + p->dib_dvbc + gfb_o;
+    d.d_vbe = n->dib_dvbe;
+    d.d_veb = -p->dib_dvbe;
+    return d;
+}
+
+/* Inner residual F(y; x) and its Jacobian (row-major). */
+static void network(const OsPushpullStage *s, double x, const double *y, double *f, double *j)
 {
     OsBjtEval n, p;
-    transistors(s, z, &n, &p);
-    const double x = z[PP_X], vo = z[PP_VO], out = z[PP_OUT];
-    const double gfb_o = s->loop ? 0.0 : s->g_fb; /* divider on the op-amp pin */
-    const double gfb_l = s->loop ? s->g_fb : 0.0; /* divider on the load */
+    transistors(s, y, &n, &p);
+    const Drive d = drive_current(s, y, &n, &p);
+    const double rs = s->op.rs, re = s->re;
+    const double gl = s->g_load + (s->loop ? s->g_fb : 0.0);
+    double *j0 = j, *j1 = j + Y_DIM, *j2 = j + 2 * Y_DIM, *j3 = j + 3 * Y_DIM;
 
-    /* Op-amp output current and its derivatives (vbc_n and vcb_p move with vo:
-     * +1 and -1). */
-    const double io = n.ib - p.ib + gfb_o * vo;
-    const double dio_dvo = n.dib_dvbc + p.dib_dvbc + gfb_o;
-    const double dio_dvbe = n.dib_dvbe;
-    const double dio_dveb = -p.dib_dvbe;
-    const double vfb = s->loop ? out : vo;
-    OsOpampRate r;
-    os_opamp_rate(&s->op, x, s->vin_now - vfb * s->inv_g, io, &r);
-    s->limit = r.limit;
-    const double b = s->beta;
-    const double dvd_dvo = s->loop ? 0.0 : -s->inv_g;
-    const double dvd_dout = s->loop ? -s->inv_g : 0.0;
+    f[0] = y[Y_VO] - x + rs * d.io;
+    j0[Y_VO] = 1.0 + rs * d.d_vo;
+    j0[Y_OUT] = 0.0;
+    j0[Y_VBE] = rs * d.d_vbe;
+    j0[Y_VEB] = rs * d.d_veb;
 
-    double *j1 = j, *j2 = j + PP_DIM, *j3 = j + 2 * PP_DIM, *j4 = j + 3 * PP_DIM,
-           *j5 = j + 4 * PP_DIM;
-    f[0] = x - s->c - b * r.f;
-    j1[PP_X] = 1.0 - b * r.df_dx;
-    j1[PP_VO] = -b * (r.df_dvd * dvd_dvo + r.df_dio * dio_dvo);
-    j1[PP_OUT] = -b * r.df_dvd * dvd_dout;
-    j1[PP_VBE_N] = -b * r.df_dio * dio_dvbe;
-    j1[PP_VEB_P] = -b * r.df_dio * dio_dveb;
+    f[1] = n.ie - p.ie - gl * y[Y_OUT];
+    j1[Y_VO] = n.die_dvbc + p.die_dvbc;
+    j1[Y_OUT] = -gl;
+    j1[Y_VBE] = n.die_dvbe;
+    j1[Y_VEB] = -p.die_dvbe;
 
-    const double rs = s->op.rs;
-    f[1] = vo - x + rs * io;
-    j2[PP_X] = -1.0;
-    j2[PP_VO] = 1.0 + rs * dio_dvo;
-    j2[PP_OUT] = 0.0;
-    j2[PP_VBE_N] = rs * dio_dvbe;
-    j2[PP_VEB_P] = rs * dio_dveb;
+    f[2] = y[Y_VO] + s->half_bias - y[Y_VBE] - re * n.ie - y[Y_OUT];
+    j2[Y_VO] = 1.0 - re * n.die_dvbc;
+    j2[Y_OUT] = -1.0;
+    j2[Y_VBE] = -1.0 - re * n.die_dvbe;
+    j2[Y_VEB] = 0.0;
 
-    const double gl = s->g_load + gfb_l;
-    f[2] = n.ie - p.ie - gl * out;
-    j3[PP_X] = 0.0;
-    j3[PP_VO] = n.die_dvbc + p.die_dvbc; /* d vcb_p / d vo = -1, and Ie_p enters with - */
-    j3[PP_OUT] = -gl;
-    j3[PP_VBE_N] = n.die_dvbe;
-    j3[PP_VEB_P] = -p.die_dvbe;
-
-    const double re = s->re;
-    f[3] = vo + s->half_bias - z[PP_VBE_N] - re * n.ie - out;
-    j4[PP_X] = 0.0;
-    j4[PP_VO] = 1.0 - re * n.die_dvbc;
-    j4[PP_OUT] = -1.0;
-    j4[PP_VBE_N] = -1.0 - re * n.die_dvbe;
-    j4[PP_VEB_P] = 0.0;
-
-    f[4] = vo - s->half_bias + z[PP_VEB_P] + re * p.ie - out;
-    j5[PP_X] = 0.0;
-    j5[PP_VO] = 1.0 - re * p.die_dvbc;
-    j5[PP_OUT] = -1.0;
-    j5[PP_VBE_N] = 0.0;
-    j5[PP_VEB_P] = 1.0 + re * p.die_dvbe;
+    f[3] = y[Y_VO] - s->half_bias + y[Y_VEB] + re * p.ie - y[Y_OUT];
+    j3[Y_VO] = 1.0 - re * p.die_dvbc;
+    j3[Y_OUT] = -1.0;
+    j3[Y_VBE] = 0.0;
+    j3[Y_VEB] = 1.0 + re * p.die_dvbe;
 }
 
-/* Logarithmic limiting of a move into an exponential clamp, in units of its
- * knee (pnjlim with VT = 1 and the knee at 0). */
-static double clamp_limit(double unew, double uold)
+/* Newton-Raphson on F(y; x) = 0 from y, with junction limiting. Returns 1 on
+ * convergence (a full, unlimited step below INNER_TOL). *evals counts. */
+static int solve_network(const OsPushpullStage *s, double x, double *y, int *evals)
 {
-    if (unew > 0.0 && unew - uold > 2.0) {
-        return uold > 0.0 ? uold + log(1.0 + (unew - uold)) : log(unew > 1.0 ? unew : 1.0);
-    }
-    return unew;
-}
-
-/* Newton-Raphson on x = c + beta f(x) with the algebraic equations. Returns
- * the iterations used; *ok is set when the last full step was below TOL with no
- * limiting in force. */
-static int solve(OsPushpullStage *s, double c, double vin, double *z, int max_iter, int *ok)
-{
-    double f[PP_DIM], j[PP_DIM * PP_DIM];
-    s->c = c;
-    s->vin_now = vin;
-    const double w = 1.0 / s->op.inv_w;
-    const double vsw = s->op.vsw;
-    int it = 0;
-    *ok = 0;
-    while (it < max_iter) {
-        residual(s, z, f, j);
-        ++it;
-        if (os_linear_solve(j, f, PP_DIM) != 0) {
-            break;
+    double f[Y_DIM], j[Y_DIM * Y_DIM];
+    for (int it = 0; it < INNER_ITER; ++it) {
+        network(s, x, y, f, j);
+        ++*evals;
+        if (os_linear_solve(j, f, Y_DIM) != 0) {
+            return 0;
         }
         double worst = 0.0;
-        double zn[PP_DIM];
-        for (int i = 0; i < PP_DIM; ++i) {
-            zn[i] = z[i] - f[i];
+        for (int i = 0; i < Y_DIM; ++i) {
             worst = fmax(worst, fabs(f[i]));
         }
-        if (!(worst <= 1e6)) {
-            break; /* NaN or a step no circuit here could need */
+        if (!(worst < 1e6)) {
+            return 0; /* NaN, or a move no circuit here could need */
         }
-        const double vbe = os_bjt_limit(&s->q, zn[PP_VBE_N], z[PP_VBE_N]);
-        const double veb = os_bjt_limit(&s->q, zn[PP_VEB_P], z[PP_VEB_P]);
-        double x = zn[PP_X];
-        const double up = (x - vsw) / w, up_lim = clamp_limit(up, (z[PP_X] - vsw) / w);
-        if (up_lim != up) {
-            x = vsw + w * up_lim;
-        }
-        const double dn = (-x - vsw) / w, dn_lim = clamp_limit(dn, (-z[PP_X] - vsw) / w);
-        if (dn_lim != dn) {
-            x = -vsw - w * dn_lim;
-        }
-        const int limited = vbe != zn[PP_VBE_N] || veb != zn[PP_VEB_P] || x != zn[PP_X];
-        zn[PP_VBE_N] = vbe;
-        zn[PP_VEB_P] = veb;
-        zn[PP_X] = x;
-        for (int i = 0; i < PP_DIM; ++i) {
-            z[i] = zn[i];
-        }
-        if (worst <= TOL && !limited) {
-            *ok = 1;
-            break;
+        const double vbe = os_bjt_limit(&s->q, y[Y_VBE] - f[Y_VBE], y[Y_VBE]);
+        const double veb = os_bjt_limit(&s->q, y[Y_VEB] - f[Y_VEB], y[Y_VEB]);
+        const int limited = vbe != y[Y_VBE] - f[Y_VBE] || veb != y[Y_VEB] - f[Y_VEB];
+        y[Y_VO] -= f[Y_VO];
+        y[Y_OUT] -= f[Y_OUT];
+        y[Y_VBE] = vbe;
+        y[Y_VEB] = veb;
+        if (worst <= INNER_TOL && !limited) {
+            return 1;
         }
     }
-    return it;
+    return 0;
 }
 
-/* One TR-BDF2 step of length h from the stored state; on a Newton failure the
- * step is halved (at most MAX_DEPTH times), as SPICE cuts its time step. */
-static int advance(OsPushpullStage *s, double vin, double h, int depth)
+/* Network solution at x, starting from the last one (s->y at s->xy); if Newton
+ * fails, step x there in 2, 4, ... moves, each from the previous solution. */
+static void network_at(OsPushpullStage *s, double x, double *y, int *evals)
 {
-    const double g = OS_TRBDF2_G;
-    const int max_iter = s->fresh ? MAX_ITER_FRESH : MAX_ITER;
-    s->beta = os_trbdf2_beta(h);
-    double z[PP_DIM];
-    int ok1, ok2, iters = 0;
-
-    /* Trapezoidal stage to t + g h. */
-    memcpy(z, s->z, sizeof(z));
-    const double vin_g = s->vin + g * (vin - s->vin);
-    const double c1 = s->z[PP_X] + s->beta * s->fx;
-    z[PP_X] = s->z[PP_X] + 2.0 * s->beta * s->fx;
-    iters += solve(s, c1, vin_g, z, max_iter, &ok1);
-    double zg[PP_DIM];
-    memcpy(zg, z, sizeof(z));
-
-    /* BDF2 stage to t + h; guess: extrapolate every unknown. */
-    const double c2 = OS_TRBDF2_A * zg[PP_X] - OS_TRBDF2_B * s->z[PP_X];
-    for (int i = 0; i < PP_DIM; ++i) {
-        z[i] = zg[i] + (zg[i] - s->z[i]) * ((1.0 - g) / g);
+    memcpy(y, s->y, sizeof(s->y));
+    if (*evals > STEP_BUDGET) {
+        return; /* out of budget for this step: keep the last good solution */
     }
-    iters += solve(s, c2, vin, z, max_iter, &ok2);
-
-    if (!(ok1 && ok2) && depth < MAX_DEPTH) {
-        const double vmid = 0.5 * (s->vin + vin);
-        iters += advance(s, vmid, 0.5 * h, depth + 1);
-        iters += advance(s, vin, 0.5 * h, depth + 1);
-        s->beta = os_trbdf2_beta(h);
-        return iters;
+    if (solve_network(s, x, y, evals)) {
+        return;
     }
-    double fx = (z[PP_X] - c2) / s->beta;
-    if (fabs(fx) < 1e-30) {
-        fx = 0.0;
-    }
-    for (int i = 0; i < PP_DIM; ++i) {
-        if (fabs(z[i]) < 1e-30) {
-            z[i] = 0.0; /* keep subnormals out of the state */
+    for (int k = 1; k <= MAX_HALVINGS && *evals <= STEP_BUDGET; ++k) {
+        const int moves = 1 << k;
+        int ok = 1;
+        memcpy(y, s->y, sizeof(s->y));
+        for (int m = 1; m <= moves && ok && *evals <= STEP_BUDGET; ++m) {
+            const double xm = s->xy + (x - s->xy) * m / moves;
+            ok = solve_network(s, xm, y, evals);
+        }
+        if (ok) {
+            return;
         }
     }
-    memcpy(s->z, z, sizeof(z));
-    s->fx = fx;
-    s->vin = vin;
-    s->fresh = 0;
-    return iters;
+    /* Keep the last good solution rather than a diverged one. */
+    memcpy(y, s->y, sizeof(s->y));
+}
+
+typedef struct {
+    OsPushpullStage *s;
+    double c, vin;
+    int evals;
+} Outer;
+
+static double outer_residual(void *ctx, double x, double *dr)
+{
+    Outer *o = ctx;
+    OsPushpullStage *s = o->s;
+    double y[Y_DIM];
+    network_at(s, x, y, &o->evals);
+    memcpy(s->y, y, sizeof(y)); /* warm start for the next evaluation */
+    s->xy = x;
+
+    /* Sensitivities dy/dx = J^-1 e0 (F depends on x through F0 = ... - x). */
+    double f[Y_DIM], j[Y_DIM * Y_DIM], dy[Y_DIM] = {1.0, 0.0, 0.0, 0.0};
+    network(s, x, y, f, j);
+    if (os_linear_solve(j, dy, Y_DIM) != 0) {
+        dy[Y_VO] = 1.0;
+        dy[Y_OUT] = dy[Y_VBE] = dy[Y_VEB] = 0.0;
+    }
+    OsBjtEval n, p;
+    transistors(s, y, &n, &p);
+    const Drive d = drive_current(s, y, &n, &p);
+    const double vfb = s->loop ? y[Y_OUT] : y[Y_VO];
+    const double dvfb = s->loop ? dy[Y_OUT] : dy[Y_VO];
+    OsOpampRate r;
+    os_opamp_rate(&s->op, x, o->vin - vfb * s->inv_g, d.io, &r);
+    s->limit = r.limit;
+    const double dio = d.d_vo * dy[Y_VO] + d.d_vbe * dy[Y_VBE] + d.d_veb * dy[Y_VEB];
+    const double df = r.df_dx - r.df_dvd * s->inv_g * dvfb + r.df_dio * dio;
+    *dr = 1.0 - s->beta * df;
+    if (!(*dr >= 1.0)) {
+        *dr = 1.0; /* R' >= 1 by the argument above; guard rounding */
+    }
+    return x - o->c - s->beta * r.f;
+}
+
+/* Solve one TR-BDF2 stage for x; leaves the network solution in s->y. */
+static double solve_stage(OsPushpullStage *s, double c, double vin, double guess, int *evals)
+{
+    const OsOpampCoeffs *op = &s->op;
+    /* Bracket as for the op-amp stage: |x - c| <= beta SR (the input stage is
+     * bounded by SR and the other terms oppose x), and beyond the swing clamp's
+     * factor-3 point R has the sign of x - c. */
+    const double reach = 1.01 * s->beta * op->sr + 1e-6;
+    const double xc = op->vsw + 1.0986122886681098 / op->inv_w;
+    const double lo = fmax(fmin(c, 0.0) - reach, fmin(c, -xc));
+    const double hi = fmin(fmax(c, 0.0) + reach, fmax(c, xc));
+    Outer o = {s, c, vin, *evals};
+    int it = 0;
+    const double x =
+        os_newton_scalar(outer_residual, &o, guess, lo, hi, OUTER_TOL, OUTER_ITER, &it);
+    /* The network where the iteration stopped. */
+    double y[Y_DIM];
+    network_at(s, x, y, &o.evals);
+    memcpy(s->y, y, sizeof(y));
+    s->xy = x;
+    *evals = o.evals;
+    return x;
+}
+
+/* The fast path: all five unknowns z = (x, y) in one Newton-Raphson system,
+ * the op-amp's stage equation R = x - c - beta f beside the network F. It
+ * converges in a few iterations whenever the step is gentle; when it does not
+ * (the op-amp slewing across the dead zone within one step, huge overdrive),
+ * the step is redone by the nested solution above, which always converges. */
+static void full_system(OsPushpullStage *s, double c, double vin, const double *z, double *f,
+                        double *j)
+{
+    const double *y = z + 1;
+    double fn[Y_DIM], jn[Y_DIM * Y_DIM];
+    network(s, z[PP_X], y, fn, jn);
+    OsBjtEval n, p;
+    transistors(s, y, &n, &p);
+    const Drive d = drive_current(s, y, &n, &p);
+    const double vfb = s->loop ? y[Y_OUT] : y[Y_VO];
+    OsOpampRate r;
+    os_opamp_rate(&s->op, z[PP_X], vin - vfb * s->inv_g, d.io, &r);
+    s->limit = r.limit;
+    const double b = s->beta;
+    f[0] = z[PP_X] - c - b * r.f;
+    j[0] = 1.0 - b * r.df_dx;
+    j[1 + Y_VO] = -b * (r.df_dio * d.d_vo - (s->loop ? 0.0 : r.df_dvd * s->inv_g));
+    j[1 + Y_OUT] = s->loop ? b * r.df_dvd * s->inv_g : 0.0;
+    j[1 + Y_VBE] = -b * r.df_dio * d.d_vbe;
+    j[1 + Y_VEB] = -b * r.df_dio * d.d_veb;
+    for (int i = 0; i < Y_DIM; ++i) {
+        f[1 + i] = fn[i];
+        j[(1 + i) * PP_DIM] = i == 0 ? -1.0 : 0.0; /* dF/dx */
+        for (int k = 0; k < Y_DIM; ++k) {
+            j[(1 + i) * PP_DIM + 1 + k] = jn[i * Y_DIM + k];
+        }
+    }
+}
+
+static int fast_solve(OsPushpullStage *s, double c, double vin, double *z, int *evals)
+{
+    double f[PP_DIM], j[PP_DIM * PP_DIM];
+    for (int it = 0; it < FAST_ITER; ++it) {
+        full_system(s, c, vin, z, f, j);
+        ++*evals;
+        if (os_linear_solve(j, f, PP_DIM) != 0) {
+            return 0;
+        }
+        double worst = 0.0;
+        for (int i = 0; i < PP_DIM; ++i) {
+            worst = fmax(worst, fabs(f[i]));
+        }
+        if (!(worst < 1e3)) {
+            return 0;
+        }
+        const double vbe = os_bjt_limit(&s->q, z[1 + Y_VBE] - f[1 + Y_VBE], z[1 + Y_VBE]);
+        const double veb = os_bjt_limit(&s->q, z[1 + Y_VEB] - f[1 + Y_VEB], z[1 + Y_VEB]);
+        const int limited =
+            vbe != z[1 + Y_VBE] - f[1 + Y_VBE] || veb != z[1 + Y_VEB] - f[1 + Y_VEB];
+        for (int i = 0; i < PP_DIM; ++i) {
+            z[i] -= f[i];
+        }
+        z[1 + Y_VBE] = vbe;
+        z[1 + Y_VEB] = veb;
+        if (worst <= OUTER_TOL && !limited) {
+            return 1;
+        }
+    }
+    return 0;
 }
 
 void os_pushpull_stage_step(OsPushpullStage *s, double vin, OsStepResult *r)
 {
-    const int iters = advance(s, vin, s->h, 0);
+    const double g = OS_TRBDF2_G;
+    int evals = 0;
+    if (s->fresh) {
+        /* Operating point for the present x before the first step. */
+        double y[Y_DIM];
+        memcpy(s->y, s->z + 1, sizeof(s->y));
+        s->xy = s->z[PP_X];
+        network_at(s, s->z[PP_X], y, &evals);
+        memcpy(s->y, y, sizeof(y));
+        s->fresh = 0;
+    }
+    const double x0 = s->z[PP_X];
+    const double vin_g = s->vin + g * (vin - s->vin);
+    const double c1 = x0 + s->beta * s->fx;
+    double c2, x;
+    /* Fast path: trapezoidal stage to t + g h, BDF2 stage to t + h. */
+    double z[PP_DIM], zg[PP_DIM];
+    memcpy(z, s->z, sizeof(z));
+    z[PP_X] = x0 + 2.0 * s->beta * s->fx;
+    int ok = fast_solve(s, c1, vin_g, z, &evals);
+    if (ok) {
+        memcpy(zg, z, sizeof(z));
+        c2 = OS_TRBDF2_A * zg[PP_X] - OS_TRBDF2_B * x0;
+        for (int i = 0; i < PP_DIM; ++i) {
+            z[i] = zg[i] + (zg[i] - s->z[i]) * ((1.0 - g) / g);
+        }
+        ok = fast_solve(s, c2, vin, z, &evals);
+    }
+    if (ok) {
+        x = z[PP_X];
+        memcpy(s->y, z + 1, sizeof(s->y));
+        s->xy = x;
+    } else {
+        /* Nested path from the stored state. */
+        memcpy(s->y, s->z + 1, sizeof(s->y));
+        s->xy = x0;
+        const double xg = solve_stage(s, c1, vin_g, x0 + 2.0 * s->beta * s->fx, &evals);
+        c2 = OS_TRBDF2_A * xg - OS_TRBDF2_B * x0;
+        x = solve_stage(s, c2, vin, xg + (xg - x0) * ((1.0 - g) / g), &evals);
+    }
+    double fx = (x - c2) / s->beta;
+    if (fabs(fx) < 1e-30) {
+        fx = 0.0;
+    }
+    if (fabs(x) < 1e-30) {
+        x = 0.0; /* keep subnormals out of the state */
+    }
+    for (int i = 0; i < Y_DIM; ++i) {
+        if (fabs(s->y[i]) < 1e-30) {
+            s->y[i] = 0.0;
+        }
+    }
+    s->z[PP_X] = x;
+    memcpy(s->z + 1, s->y, sizeof(s->y));
+    s->fx = fx;
+    s->vin = vin;
 
     /* Meters: load current, and the transistors' dissipation Ic Vce + Ib Vbe. */
     OsBjtEval n, p;
-    const double *z = s->z;
-    transistors(s, z, &n, &p);
-    const double out = z[PP_OUT], vo = z[PP_VO];
+    const double *y = s->y;
+    transistors(s, y, &n, &p);
+    const double out = y[Y_OUT], vo = y[Y_VO];
     const double en = out + s->re * n.ie, ep = out - s->re * p.ie;
     const double pn = n.ic * (s->rail - en) + n.ib * (vo + s->half_bias - en);
     const double pp = p.ic * (ep + s->rail) + p.ib * (ep - (vo - s->half_bias));
@@ -263,5 +398,5 @@ void os_pushpull_stage_step(OsPushpullStage *s, double vin, OsStepResult *r)
     r->iload = out * s->g_load;
     r->dissipation = pn + pp;
     r->limiting = s->limit > OS_LIMITING_SHARE;
-    r->iters = iters;
+    r->iters = evals;
 }
