@@ -19,26 +19,34 @@
 
 #define RATE 48000.0
 #define BLOCK 480
-#define URI "urn:outstage:opamp"
 
 typedef struct {
     const char *name;
+    const char *uri;
     double rail, load, gain, ilimit, fullscale;
+    double bias, loop; /* push-pull only */
 } Design;
+
+#define OPAMP "urn:outstage:opamp"
+#define PUSHPULL "urn:outstage:pushpull"
 
 /* Scenarios of our own, not any product's. */
 static const Design designs[] = {
-    {"desktop headphone driver, +-12 V into 32 ohm headphones", 12.0, 32.0, 6.0, 25.0, 1.0},
-    {"op-amp straight into an 8 ohm speaker, +-15 V", 15.0, 8.0, 6.0, 25.0, 1.0},
-    {"line driver, +-15 V, gain 20 dB into 600 ohm", 15.0, 600.0, 20.0, 25.0, 1.0},
-    {"battery practice amp, +-4.5 V into 300 ohm, 10 mA part", 4.5, 300.0, 12.0, 10.0, 1.0},
+    {"desktop headphone driver, +-12 V into 32 ohm headphones", OPAMP, 12.0, 32.0, 6.0, 25.0, 1.0,
+     0.0, 0.0},
+    {"op-amp straight into an 8 ohm speaker, +-15 V", OPAMP, 15.0, 8.0, 6.0, 25.0, 1.0, 0.0, 0.0},
+    {"line driver, +-15 V, gain 20 dB into 600 ohm", OPAMP, 15.0, 600.0, 20.0, 25.0, 1.0, 0.0, 0.0},
+    {"battery practice amp, +-9 V into 4 ohm, class B pair outside the loop", PUSHPULL, 9.0, 4.0,
+     12.0, 25.0, 1.0, 0.0, 0.0},
+    {"bench amp, +-15 V into 8 ohm, class AB (1.1 V bias), pair inside the loop", PUSHPULL, 15.0,
+     8.0, 20.0, 25.0, 1.0, 1.1, 1.0},
 };
 
 typedef struct {
     LilvInstance *inst;
     float *controls; /* one slot per port */
     uint32_t n_ports;
-    int p_in, p_out, p_peak, p_lim, p_pow, p_lat;
+    int p_in, p_out, p_peak, p_lim, p_pow, p_lat, p_diss;
     float in[BLOCK], out[BLOCK];
 } Host;
 
@@ -71,12 +79,13 @@ static void sweep(Host *h, const Design *d)
     const double f = 1000.0;
     double limit_onset = NAN, thd_onset = NAN, thd_onset_vpk = 0.0, thd_onset_power = 0.0;
     const double g = pow(10.0, d->gain / 20.0);
-    printf("  %8s %10s %9s %9s %10s\n", "level", "Vpk load", "I peak", "limiting", "THD");
+    printf("  %8s %10s %9s %9s %10s %10s\n", "level", "Vpk load", "I peak", "limiting", "THD",
+           h->p_diss >= 0 ? "Pdiss" : "");
     for (int db = -30; db <= 12; db += 3) {
         const double amp = pow(10.0, db / 20.0);
         const size_t settle = 4800, n = 9600;
         double *y = malloc(n * sizeof(double));
-        double peak_i = 0.0, lim = 0.0, pow_w = 0.0;
+        double peak_i = 0.0, lim = 0.0, pow_w = 0.0, diss = 0.0;
         lilv_instance_activate(h->inst); /* fresh state per level */
         for (size_t pos = 0; pos < settle + n; pos += BLOCK) {
             for (uint32_t i = 0; i < BLOCK; ++i) {
@@ -90,14 +99,21 @@ static void sweep(Host *h, const Design *d)
                 peak_i = fmax(peak_i, (double)h->controls[h->p_peak]);
                 lim += (double)h->controls[h->p_lim] / (double)(n / BLOCK);
                 pow_w += (double)h->controls[h->p_pow] / (double)(n / BLOCK);
+                if (h->p_diss >= 0) {
+                    diss += (double)h->controls[h->p_diss] / (double)(n / BLOCK);
+                }
             }
         }
         lilv_instance_deactivate(h->inst);
         const double thd = an_thd(y, n, RATE, f, 20);
         /* Contract: output sample = vload / (G x fullscale). */
         const double vpk = an_peak(y, n) * g * d->fullscale;
-        printf("  %5d dB %8.3f V %7.1f mA %8.1f %% %8.3f %%\n", db, vpk, 1e3 * peak_i, lim,
+        printf("  %5d dB %8.3f V %7.1f mA %8.1f %% %8.3f %%", db, vpk, 1e3 * peak_i, lim,
                100.0 * thd);
+        if (h->p_diss >= 0) {
+            printf(" %8.3f W", diss);
+        }
+        printf("\n");
         if (isnan(limit_onset) && lim > 0.0) {
             limit_onset = db;
         }
@@ -108,10 +124,12 @@ static void sweep(Host *h, const Design *d)
         }
         free(y);
     }
-    const double vlim = d->ilimit * 1e-3 * d->load;
-    const double vswing = d->rail - 1.5;
-    printf("  current limit %.0f mA x %.0f ohm = %.2f V; swing %.1f V: %s limits first\n",
-           d->ilimit, d->load, vlim, vswing,
+    const int pp = strcmp(d->uri, PUSHPULL) == 0;
+    /* The pair multiplies the op-amp's current by beta + 1 (70 by default). */
+    const double vlim = d->ilimit * 1e-3 * (pp ? 71.0 : 1.0) * d->load;
+    const double vswing = d->rail - 1.5 - (pp ? 0.65 : 0.0);
+    printf("  current limit %.0f mA%s x %.0f ohm = %.2f V; swing about %.1f V: %s limits first\n",
+           d->ilimit, pp ? " x (beta + 1)" : "", d->load, vlim, vswing,
            vlim < vswing ? "the current limiter" : "the supply rail");
     if (!isnan(limit_onset)) {
         printf("  current limiter first engages at %.0f dBFS\n", limit_onset);
@@ -171,29 +189,29 @@ int main(int argc, char **argv)
     } else {
         lilv_world_load_all(world); /* honours LV2_PATH */
     }
-    LilvNode *uri = lilv_new_uri(world, URI);
-    const LilvPlugin *plug = lilv_plugins_get_by_uri(lilv_world_get_all_plugins(world), uri);
-    if (!plug) {
-        fprintf(stderr,
-                "outstage-preview: plugin %s not found; give the bundle directory "
-                "(<build>/outstage.lv2) as the argument or set LV2_PATH\n",
-                URI);
-        return 1;
-    }
-    Host h;
-    memset(&h, 0, sizeof(h));
-    h.n_ports = lilv_plugin_get_num_ports(plug);
-    h.controls = calloc(h.n_ports, sizeof(float));
-    float *mins = calloc(h.n_ports, sizeof(float)), *maxs = calloc(h.n_ports, sizeof(float));
-    float *defs = calloc(h.n_ports, sizeof(float));
-    lilv_plugin_get_port_ranges_float(plug, mins, maxs, defs);
-    printf("outstage preview: %s through lilv at %.0f Hz\n\n",
-           lilv_node_as_string(lilv_plugin_get_uri(plug)), RATE);
+    printf("outstage preview: the plugins through lilv at %.0f Hz\n\n", RATE);
     for (size_t k = 0; k < sizeof(designs) / sizeof(designs[0]); ++k) {
         const Design *d = &designs[k];
+        LilvNode *uri = lilv_new_uri(world, d->uri);
+        const LilvPlugin *plug = lilv_plugins_get_by_uri(lilv_world_get_all_plugins(world), uri);
+        lilv_node_free(uri);
+        if (!plug) {
+            fprintf(stderr,
+                    "outstage-preview: plugin %s not found; give the bundle directory "
+                    "(<build>/outstage.lv2) as the argument or set LV2_PATH\n",
+                    d->uri);
+            return 1;
+        }
+        Host h;
+        memset(&h, 0, sizeof(h));
+        h.n_ports = lilv_plugin_get_num_ports(plug);
+        h.controls = calloc(h.n_ports, sizeof(float));
+        float *mins = calloc(h.n_ports, sizeof(float)), *maxs = calloc(h.n_ports, sizeof(float));
+        float *defs = calloc(h.n_ports, sizeof(float));
+        lilv_plugin_get_port_ranges_float(plug, mins, maxs, defs);
         h.inst = lilv_plugin_instantiate(plug, RATE, NULL);
         if (!h.inst) {
-            fprintf(stderr, "outstage-preview: cannot instantiate %s\n", URI);
+            fprintf(stderr, "outstage-preview: cannot instantiate %s\n", d->uri);
             return 1;
         }
         for (uint32_t i = 0; i < h.n_ports; ++i) {
@@ -205,6 +223,7 @@ int main(int argc, char **argv)
         h.p_lim = port_index(plug, world, "limiting");
         h.p_pow = port_index(plug, world, "load_power");
         h.p_lat = port_index(plug, world, "latency");
+        h.p_diss = port_index(plug, world, "dissipation");
         for (uint32_t i = 0; i < h.n_ports; ++i) {
             if ((int)i == h.p_in) {
                 lilv_instance_connect_port(h.inst, i, h.in);
@@ -219,17 +238,18 @@ int main(int argc, char **argv)
         set(&h, plug, world, "gain", (float)d->gain);
         set(&h, plug, world, "ilimit", (float)d->ilimit);
         set(&h, plug, world, "fullscale", (float)d->fullscale);
-        printf("%s\n", d->name);
+        set(&h, plug, world, "bias", (float)d->bias);
+        set(&h, plug, world, "loop", (float)d->loop);
+        printf("%s (%s)\n", d->name, lilv_node_as_string(lilv_plugin_get_name(plug)));
         sweep(&h, d);
         phrase(&h);
         printf("  latency %.0f frames\n\n", (double)h.controls[h.p_lat]);
         lilv_instance_free(h.inst);
+        free(h.controls);
+        free(mins);
+        free(maxs);
+        free(defs);
     }
-    free(h.controls);
-    free(mins);
-    free(maxs);
-    free(defs);
-    lilv_node_free(uri);
     lilv_world_free(world);
     return 0;
 }

@@ -195,8 +195,8 @@ static void smoothing(void **state)
         OsStage *s = fresh_kind(kind, RATE);
         os_stage_set(s, moves[m].p, moves[m].from);
         if (kind == OS_STAGE_PUSHPULL) {
-            /* Class AB (about 15 mA idle), so the signal itself has no crossover
-             * corners whose size would change with the control. */
+            /* Class AB (2 mA idle), so the signal itself has no crossover corners
+             * whose size would change with the control. */
             os_stage_set(s, OS_P_BIAS, 1.1f);
         }
         os_stage_reset(s);
