@@ -21,6 +21,12 @@ void os_bjt_init(OsBjt *t, double vbe, double beta)
 static double junction(double v, double *g)
 {
     const double u = v * (1.0 / OS_VT);
+    if (u < -40.0) {
+        /* exp(u) < 5e-18: the junction is off; skip the exponential (a reverse
+         * biased collector junction is the common case). */
+        *g = 0.0;
+        return -1.0;
+    }
     if (u > OS_BJT_EXP_MAX) {
         const double e = exp(OS_BJT_EXP_MAX);
         *g = e / OS_VT;

@@ -28,6 +28,8 @@
 #ifndef OS_SOLVER_H
 #define OS_SOLVER_H
 
+#include <math.h>
+
 #ifdef __cplusplus
 extern "C" {
 #endif
@@ -81,8 +83,54 @@ int os_newton_solve(OsVectorResidual fn, void *ctx, double *x, int n, const doub
                     double tol, int max_iter);
 
 /** Solve A y = b in place (b becomes y) for n <= OS_NEWTON_MAX_DIM, partial
- *  pivoting. Returns 0 on success, -1 if A is singular. Real-time safe. */
-int os_linear_solve(double *a, double *b, int n);
+ *  pivoting. Returns 0 on success, -1 if A is singular. Real-time safe. Inline,
+ *  so that a call with a constant n is specialised and unrolled by the compiler
+ *  (it is the inner loop of every multi-unknown circuit). */
+static inline int os_linear_solve(double *a, double *b, int n)
+{
+    for (int k = 0; k < n; ++k) {
+        int p = k;
+        double best = fabs(a[k * n + k]);
+        for (int i = k + 1; i < n; ++i) {
+            const double v = fabs(a[i * n + k]);
+            if (v > best) {
+                best = v;
+                p = i;
+            }
+        }
+        if (!(best > 0.0)) {
+            return -1;
+        }
+        if (p != k) {
+            for (int j = 0; j < n; ++j) {
+                const double t = a[k * n + j];
+                a[k * n + j] = a[p * n + j];
+                a[p * n + j] = t;
+            }
+            const double t = b[k];
+            b[k] = b[p];
+            b[p] = t;
+        }
+        const double inv = 1.0 / a[k * n + k];
+        for (int i = k + 1; i < n; ++i) {
+            const double m = a[i * n + k] * inv;
+            if (m != 0.0) {
+                for (int j = k + 1; j < n; ++j) {
+                    a[i * n + j] -= m * a[k * n + j];
+                }
+                b[i] -= m * b[k];
+            }
+        }
+    }
+    for (int k = n - 1; k >= 0; --k) {
+        double s = b[k];
+        for (int j = k + 1; j < n; ++j) {
+            s -= a[k * n + j] * b[j];
+        }
+        b[k] = s / a[k * n + k];
+    }
+    return 0;
+}
 
 #ifdef __cplusplus
 }
