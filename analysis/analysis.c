@@ -86,7 +86,7 @@ void an_run_sine(OsStage *stage, double rate, double f0, double amp, size_t sett
                     vload[t - settle] = v[i];
                 }
                 if (out) {
-                    out[t - settle] = o[i];
+                    out[t - settle] = (double)o[i];
                 }
             }
         }

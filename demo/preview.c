@@ -77,7 +77,8 @@ static void run_block(Host *h, uint32_t n)
 static void sweep(Host *h, const Design *d)
 {
     const double f = 1000.0;
-    double limit_onset = NAN, thd_onset = NAN, thd_onset_vpk = 0.0, thd_onset_power = 0.0;
+    double limit_onset = (double)NAN, thd_onset = (double)NAN;
+    double thd_onset_vpk = 0.0, thd_onset_power = 0.0;
     const double g = pow(10.0, d->gain / 20.0);
     printf("  %8s %10s %9s %9s %10s %10s\n", "level", "Vpk load", "I peak", "limiting", "THD",
            h->p_diss >= 0 ? "Pdiss" : "");
@@ -94,7 +95,7 @@ static void sweep(Host *h, const Design *d)
             run_block(h, BLOCK);
             if (pos >= settle) {
                 for (uint32_t i = 0; i < BLOCK; ++i) {
-                    y[pos - settle + i] = h->out[i];
+                    y[pos - settle + i] = (double)h->out[i];
                 }
                 peak_i = fmax(peak_i, (double)h->controls[h->p_peak]);
                 lim += (double)h->controls[h->p_lim] / (double)(n / BLOCK);

@@ -389,7 +389,7 @@ static void process(OsStage *s, const float *in, float *out, double *vload, uint
         if (rd >= s->dry_len) {
             rd -= s->dry_len;
         }
-        const double dry = s->dry[rd];
+        const double dry = (double)s->dry[rd];
         if (++s->dry_pos == s->dry_len) {
             s->dry_pos = 0;
         }

@@ -60,11 +60,11 @@ typedef struct {
  * 3-dB frequency f_t / (1 + R2/R1)). Finite A0 = 2e5 adds a gain error of G/A0,
  * under 0.005 dB for G <= 100. */
 static const GainCase gain_cases[] = {
-    {0.0f, 1.0f, 0.0, "non-inverting gain 1 + R2/R1 (Sedra and Smith sec. 2.3)"},
-    {6.0f, 1.0f, 0.0, "non-inverting gain 1 + R2/R1 (Sedra and Smith sec. 2.3)"},
-    {20.0f, 1.0f, 0.0, "non-inverting gain 1 + R2/R1 (Sedra and Smith sec. 2.3)"},
-    {40.0f, 100.0f, 0.0, "non-inverting gain 1 + R2/R1, closed-loop bandwidth 1 MHz"},
-    {40.0f, 1.0f, 1.0, "single-pole roll-off at f_t / G = 10 kHz (Sedra and Smith sec. 2.8)"},
+    {0.0, 1.0, 0.0, "non-inverting gain 1 + R2/R1 (Sedra and Smith sec. 2.3)"},
+    {6.0, 1.0, 0.0, "non-inverting gain 1 + R2/R1 (Sedra and Smith sec. 2.3)"},
+    {20.0, 1.0, 0.0, "non-inverting gain 1 + R2/R1 (Sedra and Smith sec. 2.3)"},
+    {40.0, 100.0, 0.0, "non-inverting gain 1 + R2/R1, closed-loop bandwidth 1 MHz"},
+    {40.0, 1.0, 1.0, "single-pole roll-off at f_t / G = 10 kHz (Sedra and Smith sec. 2.8)"},
 };
 
 static void linear_gain(void **state)
@@ -114,11 +114,11 @@ typedef struct {
  * below which a 5 V peak is current limited is 5 V / 25 mA = 200 ohm. The 10 kOhm
  * feedback divider (R1 + R2) is in parallel with the load here. */
 static const LimitCase limit_cases[] = {
-    {8.0f, 2.0, 0.2 * 1.01, 0.2 * 0.95, 0.0, 0.10, "25 mA x 8 ohm = 0.2 V (common practice)"},
-    {8.0f, 10.0, 0.2 * 1.01, 0.2 * 0.95, 0.0, 0.10, "25 mA x 8 ohm = 0.2 V (common practice)"},
-    {1000.0f, 5.0, 5.0 * 1.001, 5.0 * 0.999, 0.001, 0.0,
+    {8.0, 2.0, 0.2 * 1.01, 0.2 * 0.95, 0.0, 0.10, "25 mA x 8 ohm = 0.2 V (common practice)"},
+    {8.0, 10.0, 0.2 * 1.01, 0.2 * 0.95, 0.0, 0.10, "25 mA x 8 ohm = 0.2 V (common practice)"},
+    {1000.0, 5.0, 5.0 * 1.001, 5.0 * 0.999, 0.001, 0.0,
      "5 V / 1 kOhm = 5 mA, under 25 mA: clean (common practice)"},
-    {100.0f, 5.0, 2.5 * 1.01, 2.5 * 0.95, 0.0, 0.05,
+    {100.0, 5.0, 2.5 * 1.01, 2.5 * 0.95, 0.0, 0.05,
      "5 V / 100 ohm = 50 mA, over 25 mA: clipped at 2.5 V (common practice)"},
 };
 

@@ -246,7 +246,7 @@ static void bypass_and_latency(void **state)
         os_stage_process(s, x, y, (uint32_t)n);
         size_t arg = 0;
         for (size_t i = 0; i < n; ++i) {
-            if (fabs(y[i]) > fabs(y[arg])) {
+            if (fabsf(y[i]) > fabsf(y[arg])) {
                 arg = i;
             }
         }
@@ -385,7 +385,7 @@ static void extremes(void **state)
             }
             os_stage_reset(s);
             an_run_sine(s, rates[r], 1000.0, 1.0, 0, n, v, NULL);
-            const double rail = os_stage_get(s, OS_P_RAIL);
+            const double rail = (double)os_stage_get(s, OS_P_RAIL);
             const double swing = fmax(rail - (double)os_stage_get(s, OS_P_HEADROOM), 0.05 * rail);
             /* In the circuit: the load voltage stays within the op-amp's swing (plus a
              * few widths of the clamp's 50 mV knee); behind the pair, within the
