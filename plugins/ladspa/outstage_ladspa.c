@@ -7,7 +7,7 @@
  * output is named "latency", the LADSPA convention hosts look for.
  * Hints follow ladspa.h (LADSPA 1.1). */
 
-#include "outstage.h"
+#include "os_ported.h"
 
 #include <ladspa.h>
 
@@ -19,14 +19,8 @@
 /* Upper bound on ports per stage; stages with more are not offered. */
 #define MAX_PORTS 64
 
-typedef struct {
-    OsStage *stage;
-    uint32_t n_ports;
-    uint32_t audio_in, audio_out;
-    OsPortType type[MAX_PORTS];
-    int id[MAX_PORTS];
-    LADSPA_Data *port[MAX_PORTS];
-} Plugin;
+/* Ports are handed to the shared binding as float pointers. */
+_Static_assert(sizeof(LADSPA_Data) == sizeof(float), "LADSPA_Data must be float");
 
 typedef struct {
     LADSPA_PortDescriptor descriptors[MAX_PORTS];
@@ -43,98 +37,22 @@ static pthread_once_t descriptors_once = PTHREAD_ONCE_INIT;
 static LADSPA_Handle instantiate(const LADSPA_Descriptor *descriptor, unsigned long rate)
 {
     const OsStageKind kind = *(const OsStageKind *)descriptor->ImplementationData;
-    const uint32_t n = os_port_count(kind);
-    Plugin *self = calloc(1, sizeof(*self));
-    if (self == NULL) {
-        return NULL;
-    }
-    self->stage = os_stage_new(kind, (double)rate, NULL);
-    if (self->stage == NULL) {
-        free(self);
-        return NULL;
-    }
-    self->n_ports = n;
-    self->audio_in = self->audio_out = MAX_PORTS;
-    for (uint32_t i = 0; i < n; ++i) {
-        const OsPortInfo *p = os_port_get(kind, i);
-        self->type[i] = p->type;
-        self->id[i] = p->id;
-        if (p->type == OS_PORT_AUDIO_IN && self->audio_in == MAX_PORTS) {
-            self->audio_in = i;
-        } else if (p->type == OS_PORT_AUDIO_OUT && self->audio_out == MAX_PORTS) {
-            self->audio_out = i;
-        }
-    }
-    if (self->audio_in == MAX_PORTS || self->audio_out == MAX_PORTS) {
-        os_stage_free(self->stage);
-        free(self);
-        return NULL;
-    }
-    return self;
+    return os_ported_new(kind, (double)rate);
 }
 
 static void connect_port(LADSPA_Handle instance, unsigned long port, LADSPA_Data *data)
 {
-    Plugin *self = instance;
-    if (port < self->n_ports) {
-        self->port[port] = data;
-    }
+    os_ported_connect(instance, (uint32_t)(port > UINT32_MAX ? UINT32_MAX : port), data);
 }
 
 static void activate(LADSPA_Handle instance)
 {
-    Plugin *self = instance;
-    os_stage_reset(self->stage);
-}
-
-static LADSPA_Data meter_value(const Plugin *self, const OsMeters *m, int id)
-{
-    switch ((OsMeter)id) {
-    case OS_M_PEAK_CURRENT:
-        return (LADSPA_Data)m->peak_current;
-    case OS_M_LIMITING:
-        return (LADSPA_Data)m->limiting;
-    case OS_M_LOAD_POWER:
-        return (LADSPA_Data)m->load_power;
-    case OS_M_DISSIPATION:
-        return (LADSPA_Data)m->dissipation;
-    case OS_M_LATENCY:
-        return (LADSPA_Data)os_stage_latency(self->stage);
-    case OS_M_COUNT:
-        break;
-    }
-    return 0.0f;
+    os_ported_activate(instance);
 }
 
 static void run(LADSPA_Handle instance, unsigned long n_frames)
 {
-    Plugin *self = instance;
-    const uint32_t n = (uint32_t)n_frames;
-
-    /* Controls are read once per block; the stage clamps and smooths them. */
-    for (uint32_t i = 0; i < self->n_ports; ++i) {
-        if (self->type[i] == OS_PORT_CONTROL_IN && self->port[i] != NULL) {
-            os_stage_set(self->stage, (OsParam)self->id[i], *self->port[i]);
-        }
-    }
-
-    const LADSPA_Data *in = self->port[self->audio_in];
-    LADSPA_Data *out = self->port[self->audio_out];
-    if (out != NULL) {
-        if (in == NULL) {
-            memset(out, 0, n * sizeof(LADSPA_Data));
-            in = out;
-        }
-        os_stage_process(self->stage, in, out, n);
-    }
-
-    OsMeters m;
-    os_stage_meters(self->stage, &m);
-    for (uint32_t i = 0; i < self->n_ports; ++i) {
-        if (self->type[i] == OS_PORT_CONTROL_OUT && self->port[i] != NULL) {
-            *self->port[i] = meter_value(self, &m, self->id[i]);
-        }
-    }
+    os_ported_run(instance, (uint32_t)n_frames);
 }
 
 static void deactivate(LADSPA_Handle instance)
@@ -144,9 +62,7 @@ static void deactivate(LADSPA_Handle instance)
 
 static void cleanup(LADSPA_Handle instance)
 {
-    Plugin *self = instance;
-    os_stage_free(self->stage);
-    free(self);
+    os_ported_free(instance);
 }
 
 /* The value a host derives from default hint @p hint for port @p p, by the

@@ -6,25 +6,12 @@
  * lives in dsp/. One descriptor per stage that os_stage_available() reports,
  * in OsStageKind order. */
 
-#include "outstage.h"
+#include "os_ported.h"
 
 #include <lv2/core/lv2.h>
 
 #include <pthread.h>
-#include <stdlib.h>
 #include <string.h>
-
-/* Upper bound on ports per stage; stages with more are not offered. */
-#define MAX_PORTS 64
-
-typedef struct {
-    OsStage *stage;
-    uint32_t n_ports;
-    uint32_t audio_in, audio_out; /* port indices */
-    OsPortType type[MAX_PORTS];
-    int id[MAX_PORTS]; /* OsParam or OsMeter */
-    float *port[MAX_PORTS];
-} Plugin;
 
 static LV2_Descriptor descriptors[OS_STAGE_COUNT];
 static uint32_t n_descriptors;
@@ -46,102 +33,22 @@ static LV2_Handle instantiate(const LV2_Descriptor *descriptor, double rate, con
 {
     (void)bundle;
     (void)features;
-    const OsStageKind kind = kind_of(descriptor);
-    const uint32_t n = os_port_count(kind);
-    if (n == 0 || n > MAX_PORTS) {
-        return NULL;
-    }
-    Plugin *self = calloc(1, sizeof(*self));
-    if (self == NULL) {
-        return NULL;
-    }
-    self->stage = os_stage_new(kind, rate, NULL);
-    if (self->stage == NULL) {
-        free(self);
-        return NULL;
-    }
-    self->n_ports = n;
-    self->audio_in = self->audio_out = MAX_PORTS;
-    for (uint32_t i = 0; i < n; ++i) {
-        const OsPortInfo *p = os_port_get(kind, i);
-        self->type[i] = p->type;
-        self->id[i] = p->id;
-        if (p->type == OS_PORT_AUDIO_IN && self->audio_in == MAX_PORTS) {
-            self->audio_in = i;
-        } else if (p->type == OS_PORT_AUDIO_OUT && self->audio_out == MAX_PORTS) {
-            self->audio_out = i;
-        }
-    }
-    if (self->audio_in == MAX_PORTS || self->audio_out == MAX_PORTS) {
-        os_stage_free(self->stage);
-        free(self);
-        return NULL;
-    }
-    return self;
+    return os_ported_new(kind_of(descriptor), rate);
 }
 
 static void connect_port(LV2_Handle instance, uint32_t port, void *data)
 {
-    Plugin *self = instance;
-    if (port < self->n_ports) {
-        self->port[port] = data;
-    }
+    os_ported_connect(instance, port, data);
 }
 
 static void activate(LV2_Handle instance)
 {
-    Plugin *self = instance;
-    os_stage_reset(self->stage);
-}
-
-static float meter_value(const Plugin *self, const OsMeters *m, int id)
-{
-    switch ((OsMeter)id) {
-    case OS_M_PEAK_CURRENT:
-        return (float)m->peak_current;
-    case OS_M_LIMITING:
-        return (float)m->limiting;
-    case OS_M_LOAD_POWER:
-        return (float)m->load_power;
-    case OS_M_DISSIPATION:
-        return (float)m->dissipation;
-    case OS_M_LATENCY:
-        return (float)os_stage_latency(self->stage);
-    case OS_M_COUNT:
-        break;
-    }
-    return 0.0f;
+    os_ported_activate(instance);
 }
 
 static void run(LV2_Handle instance, uint32_t n)
 {
-    Plugin *self = instance;
-
-    /* Controls are read once per block; the stage clamps and smooths them. */
-    for (uint32_t i = 0; i < self->n_ports; ++i) {
-        if (self->type[i] == OS_PORT_CONTROL_IN && self->port[i] != NULL) {
-            os_stage_set(self->stage, (OsParam)self->id[i], *self->port[i]);
-        }
-    }
-
-    const float *in = self->port[self->audio_in];
-    float *out = self->port[self->audio_out];
-    if (out != NULL) {
-        if (in == NULL) {
-            /* An unconnected input is silence; the stage may work in place. */
-            memset(out, 0, n * sizeof(float));
-            in = out;
-        }
-        os_stage_process(self->stage, in, out, n);
-    }
-
-    OsMeters m;
-    os_stage_meters(self->stage, &m);
-    for (uint32_t i = 0; i < self->n_ports; ++i) {
-        if (self->type[i] == OS_PORT_CONTROL_OUT && self->port[i] != NULL) {
-            *self->port[i] = meter_value(self, &m, self->id[i]);
-        }
-    }
+    os_ported_run(instance, n);
 }
 
 static void deactivate(LV2_Handle instance)
@@ -151,9 +58,7 @@ static void deactivate(LV2_Handle instance)
 
 static void cleanup(LV2_Handle instance)
 {
-    Plugin *self = instance;
-    os_stage_free(self->stage);
-    free(self);
+    os_ported_free(instance);
 }
 
 static const void *extension_data(const char *uri)
@@ -167,7 +72,7 @@ static void make_descriptors(void)
     for (int k = 0; k < OS_STAGE_COUNT; ++k) {
         const OsStageKind kind = (OsStageKind)k;
         const OsStageInfo *info = os_stage_info(kind);
-        if (!os_stage_available(kind) || info == NULL || os_port_count(kind) > MAX_PORTS) {
+        if (!os_stage_available(kind) || info == NULL) {
             continue;
         }
         LV2_Descriptor *d = &descriptors[n_descriptors++];
