@@ -5,6 +5,8 @@
 
 #include "os_opamp.h"
 
+#include "os_fastmath.h"
+
 #include <math.h>
 
 void os_bjt_init(OsBjt *t, double vbe, double beta)
@@ -28,11 +30,11 @@ static double junction(double v, double *g)
         return -1.0;
     }
     if (u > OS_BJT_EXP_MAX) {
-        const double e = exp(OS_BJT_EXP_MAX);
+        const double e = os_exp(OS_BJT_EXP_MAX);
         *g = e / OS_VT;
         return e * (1.0 + (u - OS_BJT_EXP_MAX)) - 1.0;
     }
-    const double e = exp(u);
+    const double e = os_exp(u);
     *g = e / OS_VT;
     return e - 1.0;
 }

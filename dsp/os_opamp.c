@@ -5,6 +5,8 @@
 
 #include "os_opamp.h"
 
+#include "os_fastmath.h"
+
 #include <math.h>
 
 /* Below this argument exp(u) < 2.1e-9: a clamp term this small moves the
@@ -15,7 +17,7 @@
 double os_exp_lim(double u, double *d)
 {
     if (u > OS_EXP_MAX) {
-        const double e = exp(OS_EXP_MAX);
+        const double e = os_exp(OS_EXP_MAX);
         *d = e;
         return e * (1.0 + (u - OS_EXP_MAX));
     }
@@ -23,7 +25,7 @@ double os_exp_lim(double u, double *d)
         *d = 0.0;
         return 0.0;
     }
-    const double e = exp(u);
+    const double e = os_exp(u);
     *d = e;
     return e;
 }
@@ -47,7 +49,7 @@ void os_opamp_rate(const OsOpampCoeffs *c, double x, double vd, double io, OsOpa
 {
     /* tanh(u) = 1 - 2 / (1 + e^(2u)): one exp instead of the library's tanh;
      * absolute error about 1e-16, saturating cleanly to +-1 for large |u|. */
-    const double t = 1.0 - 2.0 / (1.0 + exp(fmin(2.0 * c->kin * vd, 700.0)));
+    const double t = 1.0 - 2.0 / (1.0 + os_exp(2.0 * c->kin * vd));
     double dp, dn;
 
     /* Current limiter: diverted drive on each polarity. */
