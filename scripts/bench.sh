@@ -6,7 +6,7 @@
 # release build in build-bench/ (or $OUTSTAGE_BENCH_BUILD), runs
 # outstage-bench once with ngspice and the netlists of tests/spice/, and writes
 # the markdown tables, headed by what machine and build they come from, to
-# bench-results.md (or the file given with --out). Other arguments go to
+# build-bench/bench-results.md (or the file given with --out). Other arguments go to
 # outstage-bench, e.g. --quick for a short run that only shows it works.
 #
 #   bash scripts/bench.sh                     # full run, about 5 minutes here
@@ -14,8 +14,8 @@
 set -euo pipefail
 cd "$(dirname "$0")/.."
 
-out=bench-results.md
 builddir=${OUTSTAGE_BENCH_BUILD:-build-bench}
+out=$builddir/bench-results.md
 args=()
 while [ $# -gt 0 ]; do
   case $1 in
@@ -38,6 +38,7 @@ else
   meson setup "$builddir" -Dbuildtype=release -Dwerror=true >/dev/null
 fi
 ninja -C "$builddir" bench/outstage-bench >/dev/null
+mkdir -p "$(dirname "$out")"
 
 ngspice=$(command -v ngspice || true)
 spice_args=(--spice-dir "$PWD/tests/spice")
