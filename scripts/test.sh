@@ -36,6 +36,6 @@ echo "== clang-format"
 find analysis bench demo dsp plugins tests tools -name '*.[ch]' -print0 | xargs -0 clang-format --dry-run --Werror
 
 echo "== benchmark (brief, to see that it runs)"
-./build/bench/outstage-bench --seconds 0.2 >/dev/null
+./build/bench/outstage-bench --quick --ngspice "$(command -v ngspice)" --spice-dir tests/spice >/dev/null
 
 echo "all checks passed"
