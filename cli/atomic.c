@@ -7,6 +7,7 @@
 
 #include <errno.h>
 #include <fcntl.h>
+#include <pthread.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
@@ -24,6 +25,17 @@ static char *dir_of(const char *path)
         return strdup("/");
     }
     return strndup(path, (size_t)(slash - path));
+}
+
+/* The process's umask, read once: umask() can only be read by setting it, which
+ * would race with the demo's threads creating files. */
+static mode_t process_umask;
+static pthread_once_t umask_once = PTHREAD_ONCE_INIT;
+
+static void read_umask(void)
+{
+    process_umask = umask(0);
+    umask(process_umask);
 }
 
 static void release(CliAtomic *a)
@@ -73,9 +85,8 @@ int cli_atomic_open(CliAtomic *a, const char *path, char *err, size_t len)
     }
     free(dir);
     /* mkstemp makes the file 0600; give it the mode a plain creat() would. */
-    const mode_t mask = umask(0);
-    umask(mask);
-    fchmod(a->fd, (mode_t)(0666 & ~mask));
+    pthread_once(&umask_once, read_umask);
+    fchmod(a->fd, (mode_t)(0666 & ~process_umask));
     return 0;
 }
 
