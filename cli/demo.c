@@ -31,15 +31,15 @@
  * more than a band-limited overshoot. */
 const CliDemoDesign cli_demo_designs[CLI_DEMO_DESIGNS] = {
     {"battery-practice",
-     "battery practice amplifier: +-9 V into a 4 ohm speaker, gain 12 dB, "
+     "battery practice amplifier, +-9 V into a 4 ohm speaker,\n  gain 12 dB, "
      "class B pair outside the loop",
      2.5, 0.0},
     {"headphone-desk",
-     "desktop headphone driver: +-12 V into 32 ohm headphones, gain 6 dB, "
+     "desktop headphone driver, +-12 V into 32 ohm headphones,\n  gain 6 dB, "
      "class B pair inside the loop",
      1.0, 0.0},
     {"bench-classab",
-     "bench amplifier: +-15 V into an 8 ohm speaker, gain 20 dB, class AB pair "
+     "bench amplifier, +-15 V into an 8 ohm speaker,\n  gain 20 dB, class AB pair "
      "(1.1 V bias) inside the loop",
      1.0, 6.0},
 };

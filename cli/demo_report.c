@@ -37,14 +37,12 @@ static void text_job(FILE *f, const CliDemoJob *j)
 {
     const CliSweep *sw = &j->sweep;
     const CliChannelStats *c = &j->render.ch[0];
-    const double rl = (double)j->settings.value[OS_P_LOAD];
-    fprintf(f, "  %-8s ", cli_stage_name(j->settings.kind));
+    fprintf(f, "  %s\n    1 kHz sweep: ", cli_stage_name(j->settings.kind));
     if (sw->onset >= 0) {
         const CliSweepPoint *p = &sw->pt[sw->onset];
-        fprintf(f, "1 kHz: THD reaches 1 %% at %.3g V peak, %.3g W into %g ohm", p->vout_peak,
-                p->load_power, rl);
+        fprintf(f, "clip onset %.3g V peak, %.3g W", p->vout_peak, p->load_power);
     } else {
-        fprintf(f, "1 kHz: THD never rises through 1 %%");
+        fprintf(f, "THD never rises through 1 %%");
     }
     if (sw->clean >= 0) {
         fprintf(f, "; largest clean power %.3g W\n", sw->pt[sw->clean].load_power);
@@ -54,38 +52,41 @@ static void text_job(FILE *f, const CliDemoJob *j)
                 b->load_power);
     }
     fprintf(f,
-            "           material: peak load current %.3g A, in current limit %.1f %% of the "
-            "time, mean load power %.3g W",
+            "    material: peak current %.3g A, current limit %.1f %% of the time, mean power "
+            "%.3g W",
             c->peak_current, c->limiting, c->load_power);
     if (j->settings.kind == OS_STAGE_PUSHPULL) {
-        fprintf(f, ", transistors %.3g W", c->dissipation);
+        fprintf(f, ",\n      transistors %.3g W", c->dissipation);
     }
     fprintf(f,
-            "\n           departs from the material by %.1f dB in the groove, %.1f dB in the "
-            "quiet pad; file normalised by %+.1f dB to %.0f dBFS peak\n",
-            j->audio.groove_db, j->audio.quiet_db, j->audio.gain_db, j->audio.peak_dbfs);
-    fprintf(f, "           %s.wav, %s-transfer.png, %s-thd.png\n", j->name, j->name, j->name);
+            "\n    departs by %.1f dB in the groove, %.1f dB in the quiet pad; normalised by "
+            "%+.1f dB\n",
+            j->audio.groove_db, j->audio.quiet_db, j->audio.gain_db);
+    fprintf(f, "    files %s.wav, %s-{transfer,thd}.png\n", j->name, j->name);
 }
 
 static void write_text(FILE *f, const CliDemoSummary *sum, const CliDemoJob *job, size_t n)
 {
     fprintf(f,
-            "outstage demo: %.0f s of generated material at %d Hz (plucked bass and drums whose "
-            "peaks reach the stages' limits, a quiet pad alone from %.0f s where crossover has "
-            "nothing to hide behind) in material.wav, rendered through both stages at %d designs "
-            "of our own. \"Departs by\" is the rms of the render minus the material, relative to "
-            "the material (trim = -drive level-matches them below the limits): 0 dB means "
-            "nothing of the material is left, -40 dB a faint colour.\n",
+            "outstage demo: %.0f s of generated material (material.wav, %d Hz): a plucked bass\n"
+            "line and drums, loud enough to put the op-amp stage in current limit at every\n"
+            "design, over a quiet pad that plays alone from %.0f s, where crossover has nothing\n"
+            "to hide behind; rendered through both stages at %d designs of our own.\n"
+            "THD per IEC 60268-3 (harmonics to 20 kHz over the fundamental) of a 1 kHz sine\n"
+            "stepped in 2 dB; the clip onset is where THD rises through 1 %%.\n"
+            "\"Departs by\" is the rms of the render minus the material over the material's rms\n"
+            "(trim = -drive matches their levels below the limits): 0 dB means nothing of the\n"
+            "material is left, -40 dB a faint colour. Each file is then normalised to the\n"
+            "material's peak.\n",
             sum->seconds, sum->rate, cli_material_quiet_start(sum->seconds), CLI_DEMO_DESIGNS);
-    fprintf(f, "THD: IEC 60268-3 (harmonics to 20 kHz over the fundamental), 1 kHz sine stepped in "
-               "2 dB; \"clip onset\" is where THD rises through 1 %%.\n");
     const CliDemoDesign *last = NULL;
     for (size_t i = 0; i < n; ++i) {
         const CliDemoJob *j = &job[i];
         if (j->design != last) {
             last = j->design;
-            fprintf(f, "\n%s (%s, fullscale %g V, drive %+g dB)\n", j->design->title,
-                    j->design->slug, j->design->fullscale, j->design->drive);
+            fprintf(f, "\n%s: %s\n  fullscale %g V, drive %+g dB, trim %+g dB\n", j->design->slug,
+                    j->design->title, j->design->fullscale, j->design->drive,
+                    0.0 - j->design->drive + 0.0);
         }
         text_job(f, j);
     }
