@@ -118,9 +118,9 @@ static void onset_at(double ilimit_ma, double load)
     assert_true(on->thd >= CLI_CLIP_THD && sw.pt[sw.onset - 1].thd < CLI_CLIP_THD);
     assert_true(on->vout_peak <= c);
     assert_true(on->vout_peak >= lo_v && on->vout_peak <= hi_v);
-    const double knee = 3.0 * VT / VSENSE;
 
-    /* The largest clean power: its own peak by Ohm's law, and under C^2 / 2R. */
+    /* The largest clean power: its own peak by Ohm's law, under C^2 / 2R, and
+     * just below the predicted onset. */
     double lo, hi;
     power_bounds(cl->thd, &lo, &hi);
     const double ratio = cl->load_power / (cl->vout_peak * cl->vout_peak / (2.0 * load));
@@ -130,7 +130,9 @@ static void onset_at(double ilimit_ma, double load)
            cl->load_power / (c * c / (2.0 * load)));
     assert_true(ratio >= lo && ratio <= hi);
     assert_true(cl->load_power <= c * c / (2.0 * load) * (1.0 + cl->thd * cl->thd));
-    assert_true(cl->load_power >= pow(c * (1.0 - knee), 2.0) / (2.0 * load) * lo);
+    /* One step below the onset: its peak lies within a step and 1 % below V1. */
+    assert_true(cl->vout_peak >= lo_v * pow(10.0, -spec.step / 20.0) && cl->vout_peak <= v1 * 1.01);
+    assert_true(cl->load_power >= pow(cl->vout_peak, 2.0) / (2.0 * load) * lo);
     assert_true(sw.clean == sw.onset - 1);
 
     /* Well below the limit the bound shrinks to a few parts in 10^4. */
