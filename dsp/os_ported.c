@@ -63,8 +63,21 @@ void os_ported_connect(OsPorted *p, uint32_t index, float *data)
     }
 }
 
+/* Hand every connected control input to the stage (it clamps and ramps). */
+static void read_controls(OsPorted *p)
+{
+    for (uint32_t i = 0; i < p->n_ports; ++i) {
+        if (p->type[i] == OS_PORT_CONTROL_IN && p->port[i] != NULL) {
+            os_stage_set(p->stage, (OsParam)p->id[i], *p->port[i]);
+        }
+    }
+}
+
 void os_ported_activate(OsPorted *p)
 {
+    /* Start at the host's settings, not at the defaults: the reset jumps every
+     * ramp to its target, so the first block does not glide for 20 ms. */
+    read_controls(p);
     os_stage_reset(p->stage);
 }
 
@@ -89,11 +102,7 @@ static float meter_value(const OsPorted *p, const OsMeters *m, int id)
 
 void os_ported_run(OsPorted *p, uint32_t n)
 {
-    for (uint32_t i = 0; i < p->n_ports; ++i) {
-        if (p->type[i] == OS_PORT_CONTROL_IN && p->port[i] != NULL) {
-            os_stage_set(p->stage, (OsParam)p->id[i], *p->port[i]);
-        }
-    }
+    read_controls(p);
     const float *in = p->port[p->audio_in];
     float *out = p->port[p->audio_out];
     if (out != NULL) {

@@ -32,7 +32,8 @@ void os_ported_free(OsPorted *p);
  *  beyond the table are ignored. Real-time safe. */
 void os_ported_connect(OsPorted *p, uint32_t index, float *data);
 
-/** Clear the signal state (the plugin's activate). Real-time safe. */
+/** The plugin's activate: take the connected controls' values as the
+ *  stage's settings without a ramp, and clear the signal state. Real-time safe. */
 void os_ported_activate(OsPorted *p);
 
 /**
