@@ -3,8 +3,8 @@
 # SPDX-License-Identifier: ISC
 #
 # The main job on an embedded default: installs what is missing, builds, and
-# loads the op-amp stage plugin from the build tree through lilv, as a host
-# would, to report where several designs current-limit and clip.
+# runs `outstage demo`, which synthesises its own program material, renders it
+# through both stages at three designs and writes audio, plots and a report.
 set -euo pipefail
 cd "$(dirname "$0")/.."
 
@@ -15,4 +15,6 @@ else
   meson setup build -Dbuildtype=release >/dev/null
 fi
 ninja -C build >/dev/null
-./build/demo/outstage-preview build/outstage.lv2
+./build/cli/outstage demo "${1:-outstage-demo}"
+echo
+echo "outstage: audio (*.wav), plots (*.png) and report.txt are in ${1:-outstage-demo}/"

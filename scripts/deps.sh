@@ -10,7 +10,7 @@ packages=(
   gcc pkg-config meson ninja-build
   lv2-dev liblilv-dev lilv-utils ladspa-sdk
   libcmocka-dev ngspice sox sordi serdi clang-format
-  libsndfile1-dev libfftw3-dev libcairo2-dev python3-numpy python3-scipy
+  libsndfile1-dev libfftw3-dev libcairo2-dev python3-numpy python3-scipy groff-base
 )
 
 missing=()

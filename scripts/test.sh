@@ -30,10 +30,11 @@ configure build-sanitize -Dbuildtype=debug -Dwerror=true -Db_sanitize=address,un
   -Db_lundef=false
 ninja -C build-sanitize
 UBSAN_OPTIONS=halt_on_error=1:print_stacktrace=1 ASAN_OPTIONS=detect_leaks=1 \
-  meson test -C build-sanitize --print-errorlogs --num-processes 2 --suite dsp --suite plugin
+  meson test -C build-sanitize --print-errorlogs --num-processes 2 --suite dsp --suite plugin \
+  --suite cli
 
 echo "== clang-format"
-find analysis bench demo dsp plugins tests tools -name '*.[ch]' -print0 | xargs -0 clang-format --dry-run --Werror
+find analysis bench cli demo dsp plugins tests tools -name '*.[ch]' -print0 | xargs -0 clang-format --dry-run --Werror
 
 echo "== benchmark (brief, to see that it runs)"
 ./build/bench/outstage-bench --quick --ngspice "$(command -v ngspice)" --spice-dir tests/spice >/dev/null
