@@ -52,7 +52,7 @@ static long long whole_hz(double f)
 size_t al_record_length(double rate, double f0, double seconds)
 {
     const long long fs = whole_hz(rate), f = whole_hz(f0);
-    if (fs < 0 || f < 0) {
+    if (fs <= 0 || f <= 0) {
         return 0;
     }
     /* the output repeats every fs / gcd(f0, fs) samples */
@@ -64,7 +64,7 @@ size_t al_record_length(double rate, double f0, double seconds)
 int al_analyse(const double *x, size_t n, double rate, double f0, AlResult *r)
 {
     const long long fs = whole_hz(rate), f = whole_hz(f0);
-    if (fs < 0 || f < 0 || n < 4 || n % (size_t)(fs / gcd_ll(f, fs)) != 0) {
+    if (fs <= 0 || f <= 0 || n < 4 || n % (size_t)(fs / gcd_ll(f, fs)) != 0) {
         return -1;
     }
     const long long g = gcd_ll(f, fs);
@@ -78,7 +78,7 @@ int al_analyse(const double *x, size_t n, double rate, double f0, AlResult *r)
     /* FFTW_ESTIMATE leaves the input alone while planning. */
     fftw_plan plan = fftw_plan_dft_r2c_1d((int)n, in, out, FFTW_ESTIMATE);
     for (size_t i = 0; i < n; ++i) {
-        in[i] = x[i];
+        in[i] = x[i]; /* NOLINT(clang-analyzer-core.uninitialized.Assign): x holds n samples */
     }
     fftw_execute(plan);
 
@@ -138,7 +138,7 @@ double al_sine(size_t i, double rate, double f0)
     /* phase i f0 / fs cycles, reduced modulo 1 in integers: exact, so every
      * period of the record gets the same samples */
     const long long fs = whole_hz(rate), f = whole_hz(f0);
-    if (fs < 0 || f < 0) {
+    if (fs <= 0 || f < 0) {
         return sin(2.0 * M_PI * f0 * (double)i / rate);
     }
     const long long k = ((long long)(i % (size_t)fs) * f) % fs;
@@ -169,7 +169,7 @@ int al_measure_tone(const AlTone *t, double rate, int factor, double seconds, Al
 {
     const size_t n = al_record_length(rate, t->freq, seconds);
     OsStage *s = n ? al_make_stage(t, rate, factor) : NULL;
-    double *rec = malloc(n * sizeof(*rec));
+    double *rec = n ? malloc(n * sizeof(*rec)) : NULL;
     if (!s || !rec) {
         os_stage_free(s);
         free(rec);

@@ -59,8 +59,8 @@ int cli_atomic_open(CliAtomic *a, const char *path, char *err, size_t len)
     const char *slash = strrchr(path, '/');
     const char *base = slash ? slash + 1 : path;
     a->path = strdup(path);
-    const size_t n = strlen(dir) + strlen(base) + 16;
-    a->tmp = malloc(n);
+    const size_t n = (dir ? strlen(dir) : 0) + strlen(base) + 16;
+    a->tmp = dir ? malloc(n) : NULL;
     if (dir == NULL || a->path == NULL || a->tmp == NULL) {
         free(dir);
         release(a);

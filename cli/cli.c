@@ -35,7 +35,7 @@ void cli_err(char *err, size_t len, const char *fmt, ...)
     }
     va_list ap;
     va_start(ap, fmt);
-    vsnprintf(err, len, fmt, ap);
+    vsnprintf(err, len, fmt, ap); /* NOLINT(clang-analyzer-valist.Uninitialized): started above */
     va_end(ap);
     /* One line: a file name with a newline in it must not break the message. */
     for (char *c = err; *c; ++c) {

@@ -261,7 +261,7 @@ double cli_settings_expected_limit(const CliSettings *s, int *current_limited)
     const double swing_op = fmax(rail - (double)s->value[OS_P_HEADROOM], 0.05 * rail);
     const double ilim = 1e-3 * (double)s->value[OS_P_ILIMIT];
     const double rl = (double)s->value[OS_P_LOAD];
-    double swing = swing_op, ilimit_v;
+    double swing, ilimit_v;
     if (s->kind == OS_STAGE_PUSHPULL) {
         /* The follower loses one vbe; the pair multiplies the current by beta + 1. */
         swing = fmax(swing_op - (double)s->value[OS_P_VBE], 0.05 * rail);

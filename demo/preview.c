@@ -178,10 +178,10 @@ int main(int argc, char **argv)
          * specifications. */
         const size_t len = strlen(argv[1]);
         char *dir = malloc(len + 2);
-        memcpy(dir, argv[1], len + 1);
-        if (len == 0 || dir[len - 1] != '/') {
-            strcat(dir, "/");
+        if (dir == NULL) {
+            return 1;
         }
+        snprintf(dir, len + 2, "%s%s", argv[1], len == 0 || argv[1][len - 1] != '/' ? "/" : "");
         lilv_world_load_specifications(world);
         LilvNode *bundle = lilv_new_file_uri(world, NULL, dir);
         lilv_world_load_bundle(world, bundle);
@@ -211,8 +211,12 @@ int main(int argc, char **argv)
         float *defs = calloc(h.n_ports, sizeof(float));
         lilv_plugin_get_port_ranges_float(plug, mins, maxs, defs);
         h.inst = lilv_plugin_instantiate(plug, RATE, NULL);
-        if (!h.inst) {
+        if (!h.inst || !h.controls || !mins || !maxs || !defs) {
             fprintf(stderr, "outstage-preview: cannot instantiate %s\n", d->uri);
+            free(h.controls);
+            free(mins);
+            free(maxs);
+            free(defs);
             return 1;
         }
         for (uint32_t i = 0; i < h.n_ports; ++i) {

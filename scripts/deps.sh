@@ -9,7 +9,7 @@ set -euo pipefail
 packages=(
   gcc pkg-config meson ninja-build
   lv2-dev liblilv-dev lilv-utils ladspa-sdk
-  libcmocka-dev ngspice sox sordi serdi clang-format
+  libcmocka-dev ngspice sox sordi serdi clang-format clang-tidy cppcheck
   libsndfile1-dev libfftw3-dev libcairo2-dev python3-numpy python3-scipy groff-base
 )
 

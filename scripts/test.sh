@@ -36,6 +36,9 @@ UBSAN_OPTIONS=halt_on_error=1:print_stacktrace=1 ASAN_OPTIONS=detect_leaks=1 \
 echo "== clang-format"
 find analysis bench cli demo dsp plugins tests tools -name '*.[ch]' -print0 | xargs -0 clang-format --dry-run --Werror
 
+echo "== lint (cppcheck, clang-tidy)"
+bash scripts/lint.sh build
+
 echo "== benchmark (brief, to see that it runs)"
 ./build/bench/outstage-bench --quick --ngspice "$(command -v ngspice)" --spice-dir tests/spice >/dev/null
 
