@@ -86,6 +86,8 @@ int os_opamp_stage_ok(const OsOpampStage *s);
  *  solution once it is spent. */
 #define OS_PUSHPULL_STEP_BUDGET 300
 #define OS_PUSHPULL_FAST_EVALS 24
+/** The budget of a step that follows one which spent all of its own. */
+#define OS_PUSHPULL_STARVED_BUDGET 40
 
 /** Unknowns of the push-pull stage, in the order of its Newton system. */
 enum { PP_X = 0, PP_VO, PP_OUT, PP_VBE_N, PP_VEB_P, PP_DIM };
@@ -107,7 +109,9 @@ typedef struct {
     /* state at the last step: x and the network (vo, out, vbe_n, veb_p) */
     double z[PP_DIM];
     double fx, vin;
-    int fresh; /**< no step since reset: find the operating point first */
+    int fresh;   /**< no step since reset: find the operating point first */
+    int starved; /**< the last nested step spent its whole budget */
+    int budget;  /**< evaluation count at which the present step stops trying */
     /* the last network solution, at x = xy: warm start of the next solve */
     double y[PP_DIM - 1];
     double xy;

@@ -333,6 +333,20 @@ static double approach(double cur, double tgt, double step)
     return fmax(cur - step, tgt);
 }
 
+/* Clamp meter @p m's value to its port's range; NaN reads full scale. */
+static double peg(OsStageKind kind, OsMeter m, double v)
+{
+    double top = 1e4;
+    const uint32_t n = os_port_count(kind);
+    for (uint32_t i = 0; i < n; ++i) {
+        const OsPortInfo *p = os_port_get(kind, i);
+        if (p->type == OS_PORT_CONTROL_OUT && p->id == (int)m) {
+            top = (double)p->max;
+        }
+    }
+    return v >= 0.0 && v <= top ? v : v < 0.0 ? 0.0 : top;
+}
+
 static void process(OsStage *s, const float *in, float *out, double *vload, uint32_t n)
 {
 #ifdef OS_HAVE_MXCSR
@@ -413,10 +427,13 @@ static void process(OsStage *s, const float *in, float *out, double *vload, uint
         clear_signal_state(s);
     }
 
-    s->meters.peak_current = peak;
+    /* Meters stay within their ports' ranges: a value beyond (only settings far
+     * outside physical sense get there, e.g. gigaampere idle currents) pegs at
+     * the top of the scale, as a real meter would. */
+    s->meters.peak_current = peg(s->kind, OS_M_PEAK_CURRENT, peak);
     s->meters.limiting = steps ? 100.0 * limited / steps : 0.0;
-    s->meters.load_power = n ? power / n : 0.0;
-    s->meters.dissipation = steps ? dissipation / steps : 0.0;
+    s->meters.load_power = peg(s->kind, OS_M_LOAD_POWER, n ? power / n : 0.0);
+    s->meters.dissipation = peg(s->kind, OS_M_DISSIPATION, steps ? dissipation / steps : 0.0);
     s->meters.newton_iters = steps ? iters / steps : 0.0;
 #ifdef OS_HAVE_MXCSR
     _mm_setcsr(csr);

@@ -41,6 +41,7 @@ enum { Y_VO = 0, Y_OUT, Y_VBE, Y_VEB, Y_DIM };
 #define MAX_HALVINGS 8 /* source stepping: up to 256 moves of x */
 #define FAST_ITER (OS_PUSHPULL_FAST_EVALS / 2)
 #define STEP_BUDGET OS_PUSHPULL_STEP_BUDGET
+#define STARVED_BUDGET OS_PUSHPULL_STARVED_BUDGET
 
 void os_pushpull_stage_update(OsPushpullStage *s, const OsCircuitParams *p, double h)
 {
@@ -67,6 +68,8 @@ void os_pushpull_stage_reset(OsPushpullStage *s)
     s->vin = 0.0;
     s->limit = 0.0;
     s->fresh = 1;
+    s->starved = 0;
+    s->budget = STEP_BUDGET;
 }
 
 int os_pushpull_stage_ok(const OsPushpullStage *s)
@@ -176,17 +179,17 @@ static int solve_network(const OsPushpullStage *s, double x, double *y, int *eva
 static void network_at(OsPushpullStage *s, double x, double *y, int *evals)
 {
     memcpy(y, s->y, sizeof(s->y));
-    if (*evals > STEP_BUDGET) {
+    if (*evals > s->budget) {
         return; /* out of budget for this step: keep the last good solution */
     }
     if (solve_network(s, x, y, evals)) {
         return;
     }
-    for (int k = 1; k <= MAX_HALVINGS && *evals <= STEP_BUDGET; ++k) {
+    for (int k = 1; k <= MAX_HALVINGS && *evals <= s->budget; ++k) {
         const int moves = 1 << k;
         int ok = 1;
         memcpy(y, s->y, sizeof(s->y));
-        for (int m = 1; m <= moves && ok && *evals <= STEP_BUDGET; ++m) {
+        for (int m = 1; m <= moves && ok && *evals <= s->budget; ++m) {
             const double xm = s->xy + (x - s->xy) * m / moves;
             ok = solve_network(s, xm, y, evals);
         }
@@ -381,9 +384,11 @@ void os_pushpull_stage_step(OsPushpullStage *s, double vin, OsStepResult *r)
         double y[Y_DIM];
         memcpy(s->y, s->z + 1, sizeof(s->y));
         s->xy = s->z[PP_X];
+        s->budget = STEP_BUDGET;
         network_at(s, s->z[PP_X], y, &evals);
         memcpy(s->y, y, sizeof(y));
         s->fresh = 0;
+        evals = 0;
     }
     const double x0 = s->z[PP_X];
     const double vin_g = s->vin + g * (vin - s->vin);
@@ -407,12 +412,20 @@ void os_pushpull_stage_step(OsPushpullStage *s, double vin, OsStepResult *r)
         memcpy(s->y, z + 1, sizeof(s->y));
         s->xy = x;
     } else {
-        /* Nested path from the stored state. */
+        /* Nested path from the stored state. After a step that spent its whole
+         * budget the next one gets a small one, so that settings where Newton
+         * keeps failing cost a bounded few evaluations per step, not hundreds. */
+        s->budget = evals + (s->starved ? STARVED_BUDGET : STEP_BUDGET);
+        const int start = evals;
         memcpy(s->y, s->z + 1, sizeof(s->y));
         s->xy = x0;
         const double xg = solve_stage(s, c1, vin_g, x0 + 2.0 * s->beta * s->fx, &evals);
         c2 = OS_TRBDF2_A * xg - OS_TRBDF2_B * x0;
         x = solve_stage(s, c2, vin, xg + (xg - x0) * ((1.0 - g) / g), &evals);
+        s->starved = evals - start >= (s->starved ? STARVED_BUDGET : STEP_BUDGET);
+    }
+    if (ok) {
+        s->starved = 0;
     }
     double fx = (x - c2) / s->beta;
     if (fabs(fx) < 1e-30) {
