@@ -42,7 +42,7 @@ static void text_job(FILE *f, const CliDemoJob *j)
         const CliSweepPoint *p = &sw->pt[sw->onset];
         fprintf(f, "clip onset %.3g V peak, %.3g W", p->vout_peak, p->load_power);
     } else {
-        fprintf(f, "THD never rises through 1 %%");
+        fprintf(f, "THD does not reach 1 %% to stay");
     }
     if (sw->clean >= 0) {
         fprintf(f, "; largest clean power %.3g W\n", sw->pt[sw->clean].load_power);
@@ -73,7 +73,8 @@ static void write_text(FILE *f, const CliDemoSummary *sum, const CliDemoJob *job
             "design, over a quiet pad that plays alone from %.0f s, where crossover has nothing\n"
             "to hide behind; rendered through both stages at %d designs of our own.\n"
             "THD per IEC 60268-3 (harmonics to 20 kHz over the fundamental) of a 1 kHz sine\n"
-            "stepped in 2 dB; the clip onset is where THD rises through 1 %%.\n"
+            "stepped in 2 dB; the clip onset is the lowest level from which THD stays at or above "
+            "1 %%.\n"
             "\"Departs by\" is the rms of the render minus the material over the material's rms\n"
             "(trim = -drive matches their levels below the limits): 0 dB means nothing of the\n"
             "material is left, -40 dB a faint colour. Each file is then normalised to the\n"

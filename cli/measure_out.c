@@ -57,7 +57,7 @@ void cli_measure_table(FILE *f, const CliSweepSpec *spec, const CliSweep *sw)
         fprintf(f, "clip onset (THD reaches 1 %%): %.2f dBFS, %.4g V peak, %.4g W into %g ohm\n",
                 p->level_dbfs, p->vout_peak, p->load_power, rl);
     } else {
-        fprintf(f, "clip onset: THD did not rise through 1 %% in this sweep\n");
+        fprintf(f, "clip onset: THD did not reach 1 %% to stay in this sweep\n");
     }
     if (sw->clean >= 0) {
         const CliSweepPoint *p = &sw->pt[sw->clean];

@@ -334,7 +334,7 @@ void cli_help(FILE *f)
           "           per channel; OUT keeps IN's rate, channels and format, written\n"
           "           atomically\n"
           "  measure  step a sine's level through STAGE: peak load voltage, THD, THD+N,\n"
-          "           load power per level, the clip onset (THD rising through 1 %) and\n"
+          "           load power per level, the clip onset (THD from there on >= 1 %) and\n"
           "           the largest clean power\n"
           "  plot     transfer (load voltage against input voltage), thd (THD against load\n"
           "           power, log-log) or spectrum (of a sine), as PNG or SVG\n"

@@ -173,13 +173,18 @@ int cli_sweep_run(const CliSweepSpec *spec, CliSweep *sw, char *err, size_t len)
         }
     }
     free(vload);
-    int below = 0;
-    for (size_t k = 0; k < sw->n && sw->onset < 0; ++k) {
+    /* Clip onset (the contract: the lowest swept level whose THD reaches 1 %),
+     * read as the lowest level from which THD stays at or above 1 % to the top
+     * of the sweep: where THD falls with level (crossover) the literal lowest
+     * level, where it dips below 1 % first, the level where it rises through. */
+    long last_clean = -1;
+    for (size_t k = 0; k < sw->n; ++k) {
         if (sw->pt[k].thd < CLI_CLIP_THD) {
-            below = 1;
-        } else if (below) {
-            sw->onset = (long)k;
+            last_clean = (long)k;
         }
+    }
+    if ((size_t)(last_clean + 1) < sw->n) {
+        sw->onset = last_clean + 1;
     }
     const size_t top = sw->onset >= 0 ? (size_t)sw->onset : sw->n;
     for (size_t k = 0; k < top; ++k) {
