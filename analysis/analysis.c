@@ -36,6 +36,20 @@ double an_thd(const double *x, size_t n, double rate, double f0, int kmax)
     return sqrt(s) / a1;
 }
 
+double an_harmonic_error(const double *x, size_t nx, double rx, const double *r, size_t nr,
+                         double rr, double f0, double band_hz)
+{
+    double num = 0.0, den = 0.0;
+    for (int k = 1; k * f0 < band_hz; ++k) {
+        double xr, xi, rre, rim;
+        an_harmonic(x, nx, rx, f0, k, &xr, &xi);
+        an_harmonic(r, nr, rr, f0, k, &rre, &rim);
+        num += (xr - rre) * (xr - rre) + (xi - rim) * (xi - rim);
+        den += rre * rre + rim * rim;
+    }
+    return sqrt(num / den);
+}
+
 double an_peak(const double *x, size_t n)
 {
     double p = 0.0;

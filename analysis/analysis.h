@@ -24,6 +24,14 @@ double an_harmonic_amp(const double *x, size_t n, double rate, double f0, int k)
  *  (IEC 60268-3 definition of total harmonic distortion). */
 double an_thd(const double *x, size_t n, double rate, double f0, int kmax);
 
+/** Relative error of the harmonics of @p f0 below @p band_hz of x (nx samples
+ *  at rx Hz) against the reference r (nr samples at rr Hz), both spanning the
+ *  same whole periods: sqrt(sum |X_k - R_k|^2 / sum |R_k|^2) over the complex
+ *  amplitudes, i.e. the rms error of the two waveforms band-limited to
+ *  band_hz (Parseval). */
+double an_harmonic_error(const double *x, size_t nx, double rx, const double *r, size_t nr,
+                         double rr, double f0, double band_hz);
+
 /** Largest |x|. */
 double an_peak(const double *x, size_t n);
 

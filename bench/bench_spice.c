@@ -179,17 +179,8 @@ static int run_ngspice(const BenchOptions *o, const char *ngspice, const AlTone 
 static double harmonic_error(const double *x, double rx, const double *r, double rr, size_t frames,
                              double f0)
 {
-    const size_t nx = (size_t)llround((double)frames * rx / RATE);
-    const size_t nr = (size_t)llround((double)frames * rr / RATE);
-    double num = 0.0, den = 0.0;
-    for (int k = 1; k * f0 < BAND_HZ; ++k) {
-        double xr, xi, rre, rim;
-        an_harmonic(x, nx, rx, f0, k, &xr, &xi);
-        an_harmonic(r, nr, rr, f0, k, &rre, &rim);
-        num += (xr - rre) * (xr - rre) + (xi - rim) * (xi - rim);
-        den += rre * rre + rim * rim;
-    }
-    return sqrt(num / den);
+    return an_harmonic_error(x, (size_t)llround((double)frames * rx / RATE), rx, r,
+                             (size_t)llround((double)frames * rr / RATE), rr, f0, BAND_HZ);
 }
 
 /* Load voltage of the plugin for the first @p frames of the tone after its

@@ -127,17 +127,8 @@ static double *read_wave(const char *path, double dt, size_t rows, double **vin)
 static double harmonic_error(const double *x, double rx, const double *r, double rr, double f,
                              int periods)
 {
-    const size_t nx = (size_t)llround(periods * rx / f);
-    const size_t nr = (size_t)llround(periods * rr / f);
-    double num = 0.0, den = 0.0;
-    for (int k = 1; k * f < BAND_HZ; ++k) {
-        double xr, xi, rre, rim;
-        an_harmonic(x, nx, rx, f, k, &xr, &xi);
-        an_harmonic(r, nr, rr, f, k, &rre, &rim);
-        num += (xr - rre) * (xr - rre) + (xi - rim) * (xi - rim);
-        den += rre * rre + rim * rim;
-    }
-    return sqrt(num / den);
+    return an_harmonic_error(x, (size_t)llround(periods * rx / f), rx, r,
+                             (size_t)llround(periods * rr / f), rr, f, BAND_HZ);
 }
 
 /* THD over the compared band, for the printout. */
