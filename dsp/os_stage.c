@@ -42,8 +42,9 @@ struct OsStage {
     int ramp_len;
     double fade_step;
 
-    float target[OS_P_COUNT]; /* in port units, clamped */
-    int has[OS_P_COUNT];
+    float target[OS_P_COUNT];           /* in port units, clamped */
+    const OsPortInfo *port[OS_P_COUNT]; /* this stage's port, NULL if it lacks one */
+    double meter_top[OS_M_COUNT];       /* full scale of each meter port */
     Ramp ramp[OS_P_COUNT];
     int ramping;
 
@@ -210,10 +211,20 @@ OsStage *os_stage_new(OsStageKind kind, double sample_rate, OsStatus *status)
         if (!info) {
             info = os_port_for_param(OS_STAGE_PUSHPULL, (OsParam)p);
         }
-        s->has[p] = os_port_for_param(kind, (OsParam)p) != NULL;
+        s->port[p] = os_port_for_param(kind, (OsParam)p);
         s->ramp[p].log_domain = (info->flags & OS_PF_LOGARITHMIC) != 0;
         s->target[p] = info->def;
         set_ramp_target(s, (OsParam)p, info->def, 1);
+    }
+    /* Meters read up to their ports' maxima (looked up once, not per block). */
+    for (int m = 0; m < OS_M_COUNT; ++m) {
+        s->meter_top[m] = 1e4;
+    }
+    for (uint32_t i = 0; i < os_port_count(kind); ++i) {
+        const OsPortInfo *p = os_port_get(kind, i);
+        if (p->type == OS_PORT_CONTROL_OUT && p->id >= 0 && p->id < OS_M_COUNT) {
+            s->meter_top[p->id] = (double)p->max;
+        }
     }
     s->ramping = 0;
     os_oversampler_init(&s->os, &s->design, valid_factor(s->target[OS_P_OVERSAMPLE]));
@@ -249,13 +260,13 @@ void os_stage_reset(OsStage *s)
 
 OsStatus os_stage_set(OsStage *s, OsParam param, float value)
 {
-    if (!s || (unsigned)param >= (unsigned)OS_P_COUNT || !s->has[param]) {
+    if (!s || (unsigned)param >= (unsigned)OS_P_COUNT || !s->port[param]) {
         return OS_ERR_ARGUMENT;
     }
     if (isnan(value)) {
         return OS_OK;
     }
-    const OsPortInfo *info = os_port_for_param(s->kind, param);
+    const OsPortInfo *info = s->port[param];
     value = value < info->min ? info->min : value > info->max ? info->max : value;
     if (info->flags & (OS_PF_TOGGLE | OS_PF_INTEGER)) {
         value = param == OS_P_OVERSAMPLE ? (float)valid_factor(value) : roundf(value);
@@ -334,16 +345,9 @@ static double approach(double cur, double tgt, double step)
 }
 
 /* Clamp meter @p m's value to its port's range; NaN reads full scale. */
-static double peg(OsStageKind kind, OsMeter m, double v)
+static double peg(const OsStage *s, OsMeter m, double v)
 {
-    double top = 1e4;
-    const uint32_t n = os_port_count(kind);
-    for (uint32_t i = 0; i < n; ++i) {
-        const OsPortInfo *p = os_port_get(kind, i);
-        if (p->type == OS_PORT_CONTROL_OUT && p->id == (int)m) {
-            top = (double)p->max;
-        }
-    }
+    const double top = s->meter_top[m];
     return v >= 0.0 && v <= top ? v : v < 0.0 ? 0.0 : top;
 }
 
@@ -430,10 +434,10 @@ static void process(OsStage *s, const float *in, float *out, double *vload, uint
     /* Meters stay within their ports' ranges: a value beyond (only settings far
      * outside physical sense get there, e.g. gigaampere idle currents) pegs at
      * the top of the scale, as a real meter would. */
-    s->meters.peak_current = peg(s->kind, OS_M_PEAK_CURRENT, peak);
+    s->meters.peak_current = peg(s, OS_M_PEAK_CURRENT, peak);
     s->meters.limiting = steps ? 100.0 * limited / steps : 0.0;
-    s->meters.load_power = peg(s->kind, OS_M_LOAD_POWER, n ? power / n : 0.0);
-    s->meters.dissipation = peg(s->kind, OS_M_DISSIPATION, steps ? dissipation / steps : 0.0);
+    s->meters.load_power = peg(s, OS_M_LOAD_POWER, n ? power / n : 0.0);
+    s->meters.dissipation = peg(s, OS_M_DISSIPATION, steps ? dissipation / steps : 0.0);
     s->meters.newton_iters = steps ? iters / steps : 0.0;
 #ifdef OS_HAVE_MXCSR
     _mm_setcsr(csr);
