@@ -8,7 +8,7 @@
 set -euo pipefail
 cd "$(dirname "$0")/.."
 build=${1:-build}
-sources=$(ls dsp/*.c plugins/*/*.c cli/*.c analysis/*.c tools/*.c demo/*.c bench/*.c)
+sources=$(ls dsp/*.c plugins/*/*.c cli/*.c analysis/*.c tools/*.c bench/*.c)
 
 echo "== cppcheck"
 cppcheck --enable=warning,performance,portability --inline-suppr --error-exitcode=1 \

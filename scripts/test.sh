@@ -34,7 +34,7 @@ UBSAN_OPTIONS=halt_on_error=1:print_stacktrace=1 ASAN_OPTIONS=detect_leaks=1 \
   --suite cli
 
 echo "== clang-format"
-find analysis bench cli demo dsp plugins tests tools -name '*.[ch]' -print0 | xargs -0 clang-format --dry-run --Werror
+find analysis bench cli dsp plugins tests tools -name '*.[ch]' -print0 | xargs -0 clang-format --dry-run --Werror
 
 echo "== lint (cppcheck, clang-tidy)"
 bash scripts/lint.sh build
