@@ -5,7 +5,9 @@
  * at every rate and oversampling factor with its latency and alias level, the
  * alias table of the standard tones, the cost of silence and denormal input,
  * a plain static clipping curve without oversampling, and ngspice on the same
- * circuits with its error against the plugin. See docs/performance.md. */
+ * circuits with its error against the plugin, and the harmonic each worst
+ * alias folds from, measured in the continuous-time waveform. See
+ * docs/performance.md. */
 
 #include <math.h>
 #include <stdio.h>
@@ -63,7 +65,7 @@ static void usage(FILE *f)
 {
     fprintf(f, "usage: outstage-bench [--quick] [--seconds S] [--repeat R] [--alias-seconds S]\n"
                "                      [--spice-seconds S] [--ngspice PATH] [--spice-dir DIR]\n"
-               "                      [--sections speed,static,spice]\n"
+               "                      [--sections speed,static,spice,fold]\n"
                "  --quick           short run to see that everything works (CI); figures rough\n"
                "  --seconds S       loud program per speed measurement (default 3)\n"
                "  --repeat R        repetitions per speed measurement, the fastest counts (3)\n"
@@ -88,7 +90,7 @@ static int parse_double(const char *s, double lo, double hi, double *v)
 int main(int argc, char **argv)
 {
     BenchOptions o = {3.0, 3, 1.0, 0.1, NULL, NULL};
-    const char *sections = "speed,static,spice";
+    const char *sections = "speed,static,spice,fold";
     for (int i = 1; i < argc; ++i) {
         const char *a = argv[i];
         const char *v = i + 1 < argc ? argv[i + 1] : NULL;
@@ -144,6 +146,9 @@ int main(int argc, char **argv)
     }
     if (strstr(sections, "spice")) {
         rc |= bench_spice(&o);
+    }
+    if (strstr(sections, "fold")) {
+        rc |= bench_fold(&o);
     }
     return rc ? 1 : 0;
 }

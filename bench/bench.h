@@ -2,10 +2,10 @@
 /* SPDX-License-Identifier: ISC */
 
 /* The benchmark program's parts: the plugin's speed and alias tables
- * (bench_speed.c), the cheap static curves (bench_static.c) and ngspice
- * (bench_spice.c), all timed in one run so that every ratio is measured on the
- * same machine at the same time. A measurement program, not a test: nothing
- * here asserts on time. */
+ * (bench_speed.c), the cheap static curves (bench_static.c), ngspice
+ * (bench_spice.c) and the sources of the aliases (bench_fold.c), all timed in one run so that every
+ * ratio is measured on the same machine at the same time. A measurement program, not a test:
+ * nothing here asserts on time. */
 
 #ifndef OS_BENCH_H
 #define OS_BENCH_H
@@ -70,5 +70,9 @@ int bench_static(const BenchOptions *o);
 
 /** ngspice on the same circuits and tones: timed, error against the plugin. */
 int bench_spice(const BenchOptions *o);
+
+/** Where the worst aliases come from: the harmonic that folds onto each, and its
+ *  level in the continuous-time waveform (the circuit stepped at 12 and 25 MHz). */
+int bench_fold(const BenchOptions *o);
 
 #endif

@@ -15,6 +15,7 @@
 #include "os_bjt.h"
 #include "os_opamp.h"
 #include "os_solver.h"
+#include "outstage.h"
 
 #ifdef __cplusplus
 extern "C" {
@@ -126,6 +127,14 @@ void os_pushpull_stage_reset(OsPushpullStage *s);
 void os_pushpull_stage_step(OsPushpullStage *s, double vin, OsStepResult *r);
 /** Whether the state is finite. */
 int os_pushpull_stage_ok(const OsPushpullStage *s);
+
+/**
+ * The circuit behind @p stage: its parameters at their present (smoothed)
+ * values, and the stage input voltage of a full-scale sample (fullscale x
+ * drive), for measurement programs that step the circuit on their own at a
+ * rate of their choice (bench/bench_fold.c). Real-time safe.
+ */
+void os_stage_circuit(const OsStage *stage, OsCircuitParams *p, double *volts_per_fs);
 
 #ifdef __cplusplus
 }

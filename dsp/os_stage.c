@@ -313,6 +313,12 @@ uint32_t os_stage_latency(const OsStage *s)
     return (uint32_t)s->os.latency;
 }
 
+void os_stage_circuit(const OsStage *s, OsCircuitParams *p, double *volts_per_fs)
+{
+    *p = s->cp;
+    *volts_per_fs = s->fullscale * s->drive_lin;
+}
+
 void os_stage_meters(const OsStage *s, OsMeters *m)
 {
     *m = s->meters;

@@ -1,0 +1,172 @@
+/* Copyright 2026 outstage developers */
+/* SPDX-License-Identifier: ISC */
+
+/* Where the aliases come from. For each standard tone and the factors 4, 8
+ * and 16 at 48 kHz, the worst alias bin of the alias table is traced back to
+ * the harmonic of the tone that folds onto it at the circuit's own rate
+ * (k f0 = m fs factor +- bin), and that harmonic's level in the continuous-time
+ * waveform is measured: the same circuit, the same parameters, stepped on its
+ * own at 12.288 and 24.576 MHz (256 and 512 x 48 kHz) so that the harmonic
+ * lies far below that rate's Nyquist frequency; agreement of the two rates
+ * shows the reference has converged. If the alias equals that harmonic's
+ * level, the simulation at that factor already samples the true waveform
+ * correctly: the alias is what ideal sampling of this waveform at that rate
+ * gives, and only band-limiting the waveform before it is sampled (or a higher
+ * rate) can lower it. */
+
+#include <inttypes.h>
+#include <math.h>
+#include <stdio.h>
+#include <stdlib.h>
+
+#include "alias.h"
+#include "bench.h"
+#include "os_circuit.h"
+
+enum { FOLD_RATE = 48000, REF_MULT_LO = 256, REF_MULT_HI = 512 };
+
+/* The load voltage of tone @p t's circuit stepped at @p ref Hz, after 20 ms,
+ * over @p n frames (whole periods of the tone: multiples of ref / gcd). */
+static int reference_record(const AlTone *t, uint64_t ref, double *rec, size_t n)
+{
+    OsStage *st = al_make_stage(t, FOLD_RATE, 4);
+    if (!st) {
+        return -1;
+    }
+    OsCircuitParams p;
+    double vpf = 0.0;
+    os_stage_circuit(st, &p, &vpf);
+    os_stage_free(st);
+    OsOpampStage *op = calloc(1, sizeof(*op));
+    OsPushpullStage *pp = calloc(1, sizeof(*pp));
+    if (!op || !pp) {
+        free(op);
+        free(pp);
+        return -1;
+    }
+    const double h = 1.0 / (double)ref;
+    os_opamp_stage_update(op, &p, h);
+    os_opamp_stage_reset(op);
+    os_pushpull_stage_update(pp, &p, h);
+    os_pushpull_stage_reset(pp);
+    const size_t settle = (size_t)(ref / 50u);
+    const double amp = t->amp * vpf;
+    for (size_t i = 0; i < settle + n; ++i) {
+        const double v = amp * al_sine(i, (double)ref, t->freq);
+        OsStepResult r;
+        if (t->kind == OS_STAGE_PUSHPULL) {
+            os_pushpull_stage_step(pp, v, &r);
+        } else {
+            os_opamp_stage_step(op, v, &r);
+        }
+        if (i >= settle) {
+            rec[i - settle] = r.vload;
+        }
+    }
+    free(op);
+    free(pp);
+    return 0;
+}
+
+/* Peak amplitude of the component at @p f Hz (a whole number) in rec[0..n),
+ * sampled at @p ref Hz, n a whole number of its periods; phases in integers. */
+static double component(const double *rec, size_t n, uint64_t ref, uint64_t f)
+{
+    double re = 0.0, im = 0.0;
+    for (size_t i = 0; i < n; ++i) {
+        const double ph = 2.0 * M_PI * (double)(((uint64_t)i * f) % ref) / (double)ref;
+        re += rec[i] * cos(ph);
+        im += rec[i] * sin(ph);
+    }
+    return 2.0 * hypot(re, im) / (double)n;
+}
+
+/* Distance of @p f from the nearest multiple of @p rate: where it lands when
+ * sampled at that rate. */
+static uint64_t fold(uint64_t f, uint64_t rate)
+{
+    const uint64_t r = f % rate;
+    return r <= rate / 2 ? r : rate - r;
+}
+
+int bench_fold(const BenchOptions *o)
+{
+    size_t nt = 0;
+    const AlTone *tones = al_tones(&nt);
+    static const int factors[] = {4, 8, 16};
+    printf("\n### Where the aliases come from\n\n"
+           "For the worst alias of each standard tone at 48 kHz (alias table), the largest "
+           "harmonic of "
+           "the tone that folds onto it at the circuit's own rate (48 kHz x factor), and that "
+           "harmonic's level in the continuous-time waveform: the same circuit stepped on its "
+           "own at %.3f and %.3f MHz (two rates, to show the reference has converged). An "
+           "alias as large as the harmonic it comes from means the simulation already samples "
+           "the true waveform: ideal sampling at that rate gives the same alias.\n\n",
+           REF_MULT_LO * (double)FOLD_RATE * 1e-6, REF_MULT_HI * (double)FOLD_RATE * 1e-6);
+    printf("| tone | oversample | worst alias (dBc) | at (Hz) | folded from harmonic | at (kHz) | "
+           "its level in the waveform (dBc), %.1f MHz | the same, %.1f MHz | alias - harmonic "
+           "(dB) |\n|---|---|---|---|---|---|---|---|---|\n",
+           REF_MULT_LO * (double)FOLD_RATE * 1e-6, REF_MULT_HI * (double)FOLD_RATE * 1e-6);
+    int rc = 0;
+    for (size_t ti = 0; ti < nt; ++ti) {
+        const AlTone *t = &tones[ti];
+        const uint64_t f0 = (uint64_t)llround(t->freq);
+        const uint64_t refs[2] = {(uint64_t)REF_MULT_LO * FOLD_RATE,
+                                  (uint64_t)REF_MULT_HI * FOLD_RATE};
+        double *rec[2] = {NULL, NULL};
+        size_t n[2] = {0, 0};
+        for (int j = 0; j < 2; ++j) {
+            n[j] = al_record_length((double)refs[j], t->freq, 0.002);
+            rec[j] = n[j] ? malloc(n[j] * sizeof(double)) : NULL;
+            if (!rec[j] || reference_record(t, refs[j], rec[j], n[j]) != 0) {
+                rc = -1;
+            }
+        }
+        for (size_t fi = 0; rc == 0 && fi < sizeof(factors) / sizeof(factors[0]); ++fi) {
+            AlResult ar;
+            if (bench_alias(ti, FOLD_RATE, factors[fi], o->alias_seconds, &ar) != 0) {
+                rc = -1;
+                break;
+            }
+            const uint64_t inner = (uint64_t)FOLD_RATE * (uint64_t)factors[fi];
+            const uint64_t bin = (uint64_t)llround(ar.worst_hz);
+            double fund[2];
+            for (int j = 0; j < 2; ++j) {
+                fund[j] = component(rec[j], n[j], refs[j], f0);
+            }
+            /* the harmonics above the circuit's Nyquist frequency that land on the
+             * bin, up to an eighth of the lower reference rate; the largest counts */
+            uint64_t best_k = 0;
+            double best[2] = {-INFINITY, -INFINITY};
+            for (uint64_t k = 2; k * f0 < refs[0] / 8; ++k) {
+                if (fold(k * f0, inner) != bin || k * f0 < inner / 2) {
+                    continue;
+                }
+                double lv[2];
+                for (int j = 0; j < 2; ++j) {
+                    lv[j] = 20.0 * log10(component(rec[j], n[j], refs[j], k * f0) / fund[j]);
+                }
+                if (lv[1] > best[1]) {
+                    best_k = k;
+                    best[0] = lv[0];
+                    best[1] = lv[1];
+                }
+            }
+            if (best_k) {
+                printf("| %s | %d | %.1f | %.0f | %" PRIu64 " | %.0f | %.1f | %.1f | %+.1f |\n",
+                       t->name, factors[fi], ar.worst_dbc, ar.worst_hz, best_k,
+                       (double)(best_k * f0) * 1e-3, best[0], best[1], ar.worst_dbc - best[1]);
+            } else {
+                printf("| %s | %d | %.1f | %.0f | none below %.1f MHz | | | | |\n", t->name,
+                       factors[fi], ar.worst_dbc, ar.worst_hz, (double)refs[0] / 8.0 * 1e-6);
+            }
+        }
+        free(rec[0]);
+        free(rec[1]);
+        if (rc != 0) {
+            fprintf(stderr, "outstage-bench: reference run of %s failed\n", t->name);
+            break;
+        }
+    }
+    return rc;
+}
