@@ -14,6 +14,7 @@ double os_newton_scalar(OsScalarResidual fn, void *ctx, double guess, double lo,
         x = 0.5 * (lo + hi);
     }
     int it = 0;
+    double last = 0.0; /* the previous Newton step, 0 if there was none */
     while (it < max_iter) {
         double d;
         const double r = fn(ctx, x, &d);
@@ -27,13 +28,22 @@ double os_newton_scalar(OsScalarResidual fn, void *ctx, double guess, double lo,
             lo = x;
         }
         const double step = r / d;
-        if (fabs(step) <= tol) {
-            x -= step; /* converged: the last Newton step is below tolerance */
+        const double a = fabs(step);
+        /* Converged when this step is below tolerance, or when the iteration is
+         * plainly in its quadratic phase and the step after this one, predicted
+         * from the last two (e_{k+1} ~ K e_k^2 with K = |step| / last^2), would
+         * be below a tenth of it: then this step lands within tolerance and the
+         * evaluation that would confirm it is saved. */
+        if (a <= tol || (a < 0.1 * fabs(last) && a * a * a < 0.1 * tol * last * last)) {
+            x -= step;
             break;
         }
         double xn = x - step;
         if (!(xn > lo && xn < hi)) {
             xn = 0.5 * (lo + hi); /* Newton left the bracket (or d was bad): bisect */
+            last = 0.0;
+        } else {
+            last = step;
         }
         const double dx = xn - x;
         x = xn;

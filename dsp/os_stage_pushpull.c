@@ -346,6 +346,7 @@ static int solve_structured(const double *j, double *f)
 static int fast_solve(OsPushpullStage *s, double c, double vin, double *z, int *evals)
 {
     double f[PP_DIM], j[PP_DIM * PP_DIM];
+    double last = 0.0; /* the previous unlimited Newton step's largest component */
     for (int it = 0; it < FAST_ITER; ++it) {
         full_system(s, c, vin, z, f, j);
         ++*evals;
@@ -354,7 +355,8 @@ static int fast_solve(OsPushpullStage *s, double c, double vin, double *z, int *
         }
         double worst = 0.0;
         for (int i = 0; i < PP_DIM; ++i) {
-            worst = fmax(worst, fabs(f[i]));
+            const double a = fabs(f[i]);
+            worst = a > worst ? a : worst;
         }
         if (!(worst < 1e3)) {
             return 0;
@@ -368,9 +370,15 @@ static int fast_solve(OsPushpullStage *s, double c, double vin, double *z, int *
         }
         z[1 + Y_VBE] = vbe;
         z[1 + Y_VEB] = veb;
-        if (worst <= OUTER_TOL && !limited) {
+        /* Converged: the step was below tolerance, or (as in os_newton_scalar)
+         * the iteration is in its quadratic phase and predicts a next step
+         * below a tenth of the tolerance. */
+        if (!limited &&
+            (worst <= OUTER_TOL ||
+             (worst < 0.1 * last && worst * worst * worst < 0.1 * OUTER_TOL * last * last))) {
             return 1;
         }
+        last = limited ? 0.0 : worst;
     }
     return 0;
 }
