@@ -24,7 +24,8 @@ extern "C" {
  * NaN gives NaN). exp(x) = 2^n e^r with n = round(x / ln 2), |r| <= ln(2)/2,
  * ln 2 split in two parts so that r is exact (Cody and Waite, Software Manual
  * for the Elementary Functions, 1980), e^r by its Taylor series to r^13
- * (truncation below 1e-17 relative), 2^n built in the exponent bits.
+ * (truncation below 1e-17 relative) evaluated by Estrin's scheme, 2^n built in
+ * the exponent bits.
  * Real-time safe.
  */
 static inline double os_exp(double x)
@@ -37,20 +38,23 @@ static inline double os_exp(double x)
     const double shifter = 6755399441055744.0;
     const double n = (x * 1.4426950408889634 + shifter) - shifter;
     const double r = (x - n * 6.93147180369123816490e-01) - n * 1.90821492927058770002e-10;
-    double p = 1.0 / 6227020800.0;
-    p = p * r + 1.0 / 479001600.0;
-    p = p * r + 1.0 / 39916800.0;
-    p = p * r + 1.0 / 3628800.0;
-    p = p * r + 1.0 / 362880.0;
-    p = p * r + 1.0 / 40320.0;
-    p = p * r + 1.0 / 5040.0;
-    p = p * r + 1.0 / 720.0;
-    p = p * r + 1.0 / 120.0;
-    p = p * r + 1.0 / 24.0;
-    p = p * r + 1.0 / 6.0;
-    p = p * r + 0.5;
-    p = p * r + 1.0;
-    p = p * r + 1.0;
+    /* Estrin's scheme (Knuth, TAOCP vol. 2, 4.6.4): the same polynomial as
+     * Horner's rule, in independent pairs joined by r^2, r^4 and r^8, so the
+     * multiplications overlap instead of waiting on each other (about a third
+     * of Horner's latency on a pipelined core; same accuracy for |r| <= 0.35). */
+    const double r2 = r * r;
+    const double r4 = r2 * r2;
+    const double r8 = r4 * r4;
+    const double p23 = 0.5 + r * (1.0 / 6.0);
+    const double p45 = 1.0 / 24.0 + r * (1.0 / 120.0);
+    const double p67 = 1.0 / 720.0 + r * (1.0 / 5040.0);
+    const double p89 = 1.0 / 40320.0 + r * (1.0 / 362880.0);
+    const double pab = 1.0 / 3628800.0 + r * (1.0 / 39916800.0);
+    const double pcd = 1.0 / 479001600.0 + r * (1.0 / 6227020800.0);
+    /* 1 is added last, so the small terms are summed before the one rounding
+     * that matters. */
+    const double p =
+        1.0 + (r + (r2 * p23 + (r4 * (p45 + r2 * p67) + r8 * ((p89 + r2 * pab) + r4 * pcd))));
     const int64_t e = (int64_t)n + 1023;
     const uint64_t bits = (uint64_t)e << 52;
     double scale;
