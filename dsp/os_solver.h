@@ -58,29 +58,65 @@ typedef double (*OsScalarResidual)(void *ctx, double x, double *d);
  * while they stay inside the bracket [lo, hi] (shrunk at every evaluation by the
  * sign of R), bisection otherwise, so it converges from any guess inside a valid
  * bracket. A guess outside the bracket starts at the bracket's nearer end.
- * Stops when a step is below @p tol or after @p max_iter evaluations.
+ * Stops when a step is below @p tol, when its quadratic phase predicts the next
+ * one below a tenth of @p tol, or after @p max_iter evaluations.
  * *iters (may be NULL) receives the number of evaluations. Real-time safe.
+ * Inline, so that the circuit's residual is inlined into the loop.
  */
-double os_newton_scalar(OsScalarResidual fn, void *ctx, double guess, double lo, double hi,
-                        double tol, int max_iter, int *iters);
+static inline double os_newton_scalar(OsScalarResidual fn, void *ctx, double guess, double lo,
+                                      double hi, double tol, int max_iter, int *iters)
+{
+    /* A guess outside the bracket moves to its nearer end; NaN to the middle. */
+    double x = guess < lo ? lo : guess > hi ? hi : guess;
+    if (isnan(x)) {
+        x = 0.5 * (lo + hi);
+    }
+    int it = 0;
+    double last = 0.0; /* the previous Newton step, 0 if there was none */
+    while (it < max_iter) {
+        double d;
+        const double r = fn(ctx, x, &d);
+        ++it;
+        if (r == 0.0) {
+            break;
+        }
+        if (r > 0.0) {
+            hi = x;
+        } else {
+            lo = x;
+        }
+        const double step = r / d;
+        const double a = fabs(step);
+        /* Converged when this step is below tolerance, or when the iteration is
+         * plainly in its quadratic phase and the step after this one, predicted
+         * from the last two (e_{k+1} ~ K e_k^2 with K = |step| / last^2), would
+         * be below a tenth of it: then this step lands within tolerance and the
+         * evaluation that would confirm it is saved. */
+        if (a <= tol || (a < 0.1 * fabs(last) && a * a * a < 0.1 * tol * last * last)) {
+            x -= step;
+            break;
+        }
+        double xn = x - step;
+        if (!(xn > lo && xn < hi)) {
+            xn = 0.5 * (lo + hi); /* Newton left the bracket (or d was bad): bisect */
+            last = 0.0;
+        } else {
+            last = step;
+        }
+        const double dx = xn - x;
+        x = xn;
+        if (fabs(dx) <= tol) {
+            break;
+        }
+    }
+    if (iters) {
+        *iters = it;
+    }
+    return x;
+}
 
-/** Largest system os_newton_solve() handles. */
+/** Largest system os_linear_solve() handles. */
 #define OS_NEWTON_MAX_DIM 6
-
-/**
- * Residual F(x) of an n-dimensional system; writes F to @p f and the Jacobian
- * (row-major, n x n) to @p jac.
- */
-typedef void (*OsVectorResidual)(void *ctx, const double *x, double *f, double *jac);
-
-/**
- * Damped Newton-Raphson for n <= OS_NEWTON_MAX_DIM unknowns, Gaussian
- * elimination with partial pivoting, step length limited per unknown to
- * @p max_step. Converges when every update is below @p tol. Returns the number
- * of iterations used. Real-time safe.
- */
-int os_newton_solve(OsVectorResidual fn, void *ctx, double *x, int n, const double *max_step,
-                    double tol, int max_iter);
 
 /** Solve A y = b in place (b becomes y) for n <= OS_NEWTON_MAX_DIM, partial
  *  pivoting. Returns 0 on success, -1 if A is singular. Real-time safe. Inline,
