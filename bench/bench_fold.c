@@ -94,7 +94,7 @@ int bench_fold(const BenchOptions *o)
     size_t nt = 0;
     const AlTone *tones = al_tones(&nt);
     static const int factors[] = {4, 8, 16};
-    printf("\n### Where the aliases come from\n\n"
+    printf("\n## Where the aliases come from\n\n"
            "For the worst alias of each standard tone at 48 kHz (alias table), the largest "
            "harmonic of "
            "the tone that folds onto it at the circuit's own rate (48 kHz x factor), and that "
