@@ -117,7 +117,7 @@ int bench_fold(const BenchOptions *o)
         size_t n[2] = {0, 0};
         for (int j = 0; j < 2; ++j) {
             n[j] = al_record_length((double)refs[j], t->freq, 0.002);
-            rec[j] = n[j] ? malloc(n[j] * sizeof(double)) : NULL;
+            rec[j] = n[j] ? calloc(n[j], sizeof(double)) : NULL;
             if (!rec[j] || reference_record(t, refs[j], rec[j], n[j]) != 0) {
                 rc = -1;
             }
