@@ -53,11 +53,12 @@ static int reference_record(const AlTone *t, uint64_t ref, double *rec, size_t n
     const double amp = t->amp * vpf;
     for (size_t i = 0; i < settle + n; ++i) {
         const double v = amp * al_sine(i, (double)ref, t->freq);
+        const double vg = amp * sin(2.0 * M_PI * t->freq * ((double)i - 1.0 + OS_TRBDF2_G) * h);
         OsStepResult r;
         if (t->kind == OS_STAGE_PUSHPULL) {
-            os_pushpull_stage_step(pp, v, &r);
+            os_pushpull_stage_step(pp, v, vg, &r);
         } else {
-            os_opamp_stage_step(op, v, &r);
+            os_opamp_stage_step(op, v, vg, &r);
         }
         if (i >= settle) {
             rec[i - settle] = r.vload;

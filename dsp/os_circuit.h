@@ -40,10 +40,18 @@ typedef struct {
 /** What one step reports for the meters. */
 typedef struct {
     double vload;       /**< load voltage, V */
+    double dvload;      /**< its time derivative, V/s */
+    double vmid;        /**< load voltage at the step's inner point t + g h (TR-BDF2), V */
+    double dvmid;       /**< its time derivative there, V/s */
     double iload;       /**< load current, A */
     double dissipation; /**< power in the output transistors, W */
-    int limiting;       /**< 1 while the op-amp current limiter is engaged */
-    int iters;          /**< Newton iterations used */
+    /** Where the op-amp is on its curves, for the stage's refinement test
+     *  (os_stage.c): d(dx/dt)/dx of its internal node through the whole loop,
+     *  1/s, a smooth function of the state that jumps when the current
+     *  limiter, the slew limit, a clamp or the follower change regime. */
+    double jac;
+    int limiting; /**< 1 while the op-amp current limiter is engaged */
+    int iters;    /**< Newton iterations used */
 } OsStepResult;
 
 /** Total resistance of the feedback divider R1 + R2, ohm. A common choice for a
@@ -68,14 +76,18 @@ typedef struct {
     double vin; /**< input voltage there, V */
     /* context of the residual during a solve */
     double c, vin_now, limit;
+    double jac; /**< loop derivative at the last evaluation, 1/s */
 } OsOpampStage;
 
 /** Derive coefficients for step @p h (s). Real-time safe. */
 void os_opamp_stage_update(OsOpampStage *s, const OsCircuitParams *p, double h);
 /** Clear the state. Real-time safe. */
 void os_opamp_stage_reset(OsOpampStage *s);
-/** One step with input voltage @p vin. Real-time safe. */
-void os_opamp_stage_step(OsOpampStage *s, double vin, OsStepResult *r);
+/** One step to input voltage @p vin, passing @p vin_g at the TR-BDF2 inner
+ *  point t + g h. Real-time safe. */
+void os_opamp_stage_step(OsOpampStage *s, double vin, double vin_g, OsStepResult *r);
+/** Change the step to @p h (s) without touching the state. Real-time safe. */
+void os_opamp_stage_set_step(OsOpampStage *s, double h);
 /** Whether the state is finite. */
 int os_opamp_stage_ok(const OsOpampStage *s);
 
@@ -123,8 +135,11 @@ typedef struct {
 void os_pushpull_stage_update(OsPushpullStage *s, const OsCircuitParams *p, double h);
 /** Clear the state. Real-time safe. */
 void os_pushpull_stage_reset(OsPushpullStage *s);
-/** One step with input voltage @p vin. Real-time safe. */
-void os_pushpull_stage_step(OsPushpullStage *s, double vin, OsStepResult *r);
+/** One step to input voltage @p vin, passing @p vin_g at the TR-BDF2 inner
+ *  point t + g h. Real-time safe. */
+void os_pushpull_stage_step(OsPushpullStage *s, double vin, double vin_g, OsStepResult *r);
+/** Change the step to @p h (s) without touching the state. Real-time safe. */
+void os_pushpull_stage_set_step(OsPushpullStage *s, double h);
 /** Whether the state is finite. */
 int os_pushpull_stage_ok(const OsPushpullStage *s);
 

@@ -41,21 +41,21 @@ static int raw_delay(const OsOversamplerDesign *d, int m)
     return t;
 }
 
-int os_oversampler_latency(const OsOversamplerDesign *d, int factor)
+int os_oversampler_latency(const OsOversamplerDesign *d, int factor, int inner)
 {
     const int m = log2_of(factor);
     const int f = 1 << m;
-    const int t = raw_delay(d, m);
+    const int t = raw_delay(d, m) + inner;
     return (t + (f - t % f) % f) / f;
 }
 
-void os_oversampler_init(OsOversampler *os, const OsOversamplerDesign *d, int factor)
+void os_oversampler_init(OsOversampler *os, const OsOversamplerDesign *d, int factor, int inner)
 {
     memset(os, 0, sizeof(*os));
     os->design = d;
     os->log2f = log2_of(factor);
     os->factor = 1 << os->log2f;
-    const int t = raw_delay(d, os->log2f);
+    const int t = raw_delay(d, os->log2f) + inner;
     os->pad = (os->factor - t % os->factor) % os->factor;
     os->latency = (t + os->pad) / os->factor;
     for (int j = 0; j < os->log2f; ++j) {

@@ -11,8 +11,9 @@
  * (1 - OS_PASSBAND) fs so that nothing folds into the kept band, later stages
  * have ever wider transition bands (a 2^M-fold cascade in the manner of
  * Crochiere and Rabiner, Multirate Digital Signal Processing, 1983, ch. 5).
- * A short delay at the top rate rounds the round-trip delay up to a whole
- * number of host frames, so the reported latency is exact.
+ * A short delay at the top rate rounds the round-trip delay (with that of the
+ * processing between the two) up to a whole number of host frames, so the
+ * reported latency is exact.
  */
 
 #ifndef OS_OVERSAMPLER_H
@@ -53,12 +54,16 @@ typedef struct {
     int pad_pos;
 } OsOversampler;
 
-/** Round trip delay in host frames for @p factor, with the rounding pad. */
-int os_oversampler_latency(const OsOversamplerDesign *d, int factor);
+/** Round trip delay in host frames for @p factor, with the rounding pad, when
+ *  the processing between the interpolator and the decimator delays by @p inner
+ *  top-rate samples (0 for the filters alone). */
+int os_oversampler_latency(const OsOversamplerDesign *d, int factor, int inner);
 
 /** Select @p factor (1, 2, 4, 8 or 16; others round down to one of these) and
- *  clear all state. Real-time safe. */
-void os_oversampler_init(OsOversampler *os, const OsOversamplerDesign *d, int factor);
+ *  clear all state. @p inner: the delay, in top-rate samples, of what runs
+ *  between os_oversampler_up() and os_oversampler_down(); the pad and the
+ *  latency account for it. Real-time safe. */
+void os_oversampler_init(OsOversampler *os, const OsOversamplerDesign *d, int factor, int inner);
 
 /** One host sample @p x in, factor samples out in @p y, in time order. */
 void os_oversampler_up(OsOversampler *os, double x, double *y);

@@ -39,12 +39,18 @@ void os_opamp_stage_update(OsOpampStage *s, const OsCircuitParams *p, double h)
     s->beta = os_trbdf2_beta(h);
 }
 
+void os_opamp_stage_set_step(OsOpampStage *s, double h)
+{
+    s->beta = os_trbdf2_beta(h);
+}
+
 void os_opamp_stage_reset(OsOpampStage *s)
 {
     s->x = 0.0;
     s->fx = 0.0;
     s->vin = 0.0;
     s->limit = 0.0;
+    s->jac = 0.0;
 }
 
 int os_opamp_stage_ok(const OsOpampStage *s)
@@ -59,7 +65,8 @@ static double residual(void *ctx, double x, double *d)
     OsOpampRate r;
     os_opamp_rate(&s->op, x, s->vin_now - fb * x, s->kx * x, &r);
     s->limit = r.limit;
-    *d = 1.0 - s->beta * (r.df_dx - r.df_dvd * fb + r.df_dio * s->kx);
+    s->jac = r.df_dx - r.df_dvd * fb + r.df_dio * s->kx;
+    *d = 1.0 - s->beta * s->jac;
     return x - s->c - s->beta * r.f;
 }
 
@@ -94,17 +101,18 @@ static double solve(OsOpampStage *s, double c, double vin, double guess, int *it
     return x;
 }
 
-void os_opamp_stage_step(OsOpampStage *s, double vin, OsStepResult *r)
+void os_opamp_stage_step(OsOpampStage *s, double vin, double vin_g, OsStepResult *r)
 {
     int iters = 0;
-    /* Trapezoidal stage to t + g h; the input is interpolated linearly. */
-    const double vin_g = s->vin + OS_TRBDF2_G * (vin - s->vin);
+    /* Trapezoidal stage to t + g h (input vin_g there), BDF2 stage to t + h. */
     const double c1 = s->x + s->beta * s->fx;
     const double xg = solve(s, c1, vin_g, s->x + 2.0 * s->beta * s->fx, &iters);
     /* BDF2 stage to t + h. */
     const double c2 = OS_TRBDF2_A * xg - OS_TRBDF2_B * s->x;
     double x = solve(s, c2, vin, xg + (xg - s->x) * ((1.0 - OS_TRBDF2_G) / OS_TRBDF2_G), &iters);
     double fx = (x - c2) / s->beta;
+    r->vmid = s->rho * xg;
+    r->dvmid = s->rho * (xg - c1) / s->beta;
     if (fabs(x) < 1e-30) {
         x = 0.0; /* keep subnormals out of the state */
     }
@@ -116,6 +124,8 @@ void os_opamp_stage_step(OsOpampStage *s, double vin, OsStepResult *r)
     s->vin = vin;
     const double vo = s->rho * x;
     r->vload = vo;
+    r->dvload = s->rho * fx;
+    r->jac = s->jac;
     r->iload = vo * s->inv_rl;
     r->dissipation = 0.0;
     r->limiting = s->limit > OS_LIMITING_SHARE;

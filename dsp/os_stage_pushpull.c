@@ -59,6 +59,12 @@ void os_pushpull_stage_update(OsPushpullStage *s, const OsCircuitParams *p, doub
     s->beta = os_trbdf2_beta(h);
 }
 
+void os_pushpull_stage_set_step(OsPushpullStage *s, double h)
+{
+    s->h = h;
+    s->beta = os_trbdf2_beta(h);
+}
+
 void os_pushpull_stage_reset(OsPushpullStage *s)
 {
     memset(s->z, 0, sizeof(s->z));
@@ -107,12 +113,15 @@ static Drive drive_current(const OsPushpullStage *s, const double *y, const OsBj
     return d;
 }
 
-/* Inner residual F(y; x) and its Jacobian (row-major). */
-static void network(const OsPushpullStage *s, double x, const double *y, double *f, double *j)
+/* Inner residual F(y; x) and its Jacobian (row-major); *d receives the
+ * op-amp's output current there. */
+static void network(const OsPushpullStage *s, double x, const double *y, double *f, double *j,
+                    Drive *drive)
 {
     OsBjtEval n, p;
     transistors(s, y, &n, &p);
     const Drive d = drive_current(s, y, &n, &p);
+    *drive = d;
     const double rs = s->op.rs, re = s->re;
     const double gl = s->g_load + (s->loop ? s->g_fb : 0.0);
     double *j0 = j, *j1 = j + Y_DIM, *j2 = j + 2 * Y_DIM, *j3 = j + 3 * Y_DIM;
@@ -148,7 +157,8 @@ static int solve_network(const OsPushpullStage *s, double x, double *y, int *eva
 {
     double f[Y_DIM], j[Y_DIM * Y_DIM];
     for (int it = 0; it < INNER_ITER; ++it) {
-        network(s, x, y, f, j);
+        Drive d;
+        network(s, x, y, f, j, &d);
         ++*evals;
         if (os_linear_solve(j, f, Y_DIM) != 0) {
             return 0;
@@ -207,6 +217,43 @@ typedef struct {
     int evals;
 } Outer;
 
+/* The loop linearised at one point: the network's Jacobian, the op-amp's
+ * output current's partials and the op-amp rate's partials. */
+typedef struct {
+    double jn[Y_DIM * Y_DIM];
+    Drive d;
+    OsOpampRate r;
+} LoopLin;
+
+/* From @p l: the rate's derivative through the whole loop in *df, and d(out)/dx
+ * in *dout. The network's sensitivities are dy/dx = J^-1 e0 (F depends on x
+ * through F0 = ... - x). */
+static void loop_slopes(const OsPushpullStage *s, const LoopLin *l, double *df, double *dout)
+{
+    double j[Y_DIM * Y_DIM], dy[Y_DIM] = {1.0, 0.0, 0.0, 0.0};
+    memcpy(j, l->jn, sizeof(j));
+    if (os_linear_solve(j, dy, Y_DIM) != 0) {
+        dy[Y_VO] = 1.0;
+        dy[Y_OUT] = dy[Y_VBE] = dy[Y_VEB] = 0.0;
+    }
+    const double dvfb = s->loop ? dy[Y_OUT] : dy[Y_VO];
+    const double dio = l->d.d_vo * dy[Y_VO] + l->d.d_vbe * dy[Y_VBE] + l->d.d_veb * dy[Y_VEB];
+    *df = l->r.df_dx - l->r.df_dvd * s->inv_g * dvfb + l->r.df_dio * dio;
+    *dout = dy[Y_OUT];
+}
+
+/* Linearise the loop at x, y (the network's residual there in fnet); returns
+ * the op-amp's rate f = dx/dt. */
+static double loop_at(OsPushpullStage *s, double x, double vin, const double *y, LoopLin *l,
+                      double *fnet)
+{
+    network(s, x, y, fnet, l->jn, &l->d);
+    const double vfb = s->loop ? y[Y_OUT] : y[Y_VO];
+    os_opamp_rate(&s->op, x, vin - vfb * s->inv_g, l->d.io, &l->r);
+    s->limit = l->r.limit;
+    return l->r.f;
+}
+
 static double outer_residual(void *ctx, double x, double *dr)
 {
     Outer *o = ctx;
@@ -215,29 +262,16 @@ static double outer_residual(void *ctx, double x, double *dr)
     network_at(s, x, y, &o->evals);
     memcpy(s->y, y, sizeof(y)); /* warm start for the next evaluation */
     s->xy = x;
-
-    /* Sensitivities dy/dx = J^-1 e0 (F depends on x through F0 = ... - x). */
-    double f[Y_DIM], j[Y_DIM * Y_DIM], dy[Y_DIM] = {1.0, 0.0, 0.0, 0.0};
-    network(s, x, y, f, j);
-    if (os_linear_solve(j, dy, Y_DIM) != 0) {
-        dy[Y_VO] = 1.0;
-        dy[Y_OUT] = dy[Y_VBE] = dy[Y_VEB] = 0.0;
-    }
-    OsBjtEval n, p;
-    transistors(s, y, &n, &p);
-    const Drive d = drive_current(s, y, &n, &p);
-    const double vfb = s->loop ? y[Y_OUT] : y[Y_VO];
-    const double dvfb = s->loop ? dy[Y_OUT] : dy[Y_VO];
-    OsOpampRate r;
-    os_opamp_rate(&s->op, x, o->vin - vfb * s->inv_g, d.io, &r);
-    s->limit = r.limit;
-    const double dio = d.d_vo * dy[Y_VO] + d.d_vbe * dy[Y_VBE] + d.d_veb * dy[Y_VEB];
-    const double df = r.df_dx - r.df_dvd * s->inv_g * dvfb + r.df_dio * dio;
+    LoopLin l;
+    double fnet[Y_DIM];
+    const double f = loop_at(s, x, o->vin, y, &l, fnet);
+    double df, dout;
+    loop_slopes(s, &l, &df, &dout);
     *dr = 1.0 - s->beta * df;
     if (!(*dr >= 1.0)) {
         *dr = 1.0; /* R' >= 1 by the argument above; guard rounding */
     }
-    return x - o->c - s->beta * r.f;
+    return x - o->c - s->beta * f;
 }
 
 /* Solve one TR-BDF2 stage for x; leaves the network solution in s->y. */
@@ -270,18 +304,14 @@ static double solve_stage(OsPushpullStage *s, double c, double vin, double guess
  * (the op-amp slewing across the dead zone within one step, huge overdrive),
  * the step is redone by the nested solution above, which always converges. */
 static void full_system(OsPushpullStage *s, double c, double vin, const double *z, double *f,
-                        double *j)
+                        double *j, LoopLin *l)
 {
     const double *y = z + 1;
-    double fn[Y_DIM], jn[Y_DIM * Y_DIM];
-    network(s, z[PP_X], y, fn, jn);
-    OsBjtEval n, p;
-    transistors(s, y, &n, &p);
-    const Drive d = drive_current(s, y, &n, &p);
-    const double vfb = s->loop ? y[Y_OUT] : y[Y_VO];
-    OsOpampRate r;
-    os_opamp_rate(&s->op, z[PP_X], vin - vfb * s->inv_g, d.io, &r);
-    s->limit = r.limit;
+    double fn[Y_DIM];
+    (void)loop_at(s, z[PP_X], vin, y, l, fn);
+    const double *jn = l->jn;
+    const Drive d = l->d;
+    const OsOpampRate r = l->r;
     const double b = s->beta;
     f[0] = z[PP_X] - c - b * r.f;
     j[0] = 1.0 - b * r.df_dx;
@@ -343,12 +373,12 @@ static int solve_structured(const double *j, double *f)
 #undef J
 }
 
-static int fast_solve(OsPushpullStage *s, double c, double vin, double *z, int *evals)
+static int fast_solve(OsPushpullStage *s, double c, double vin, double *z, int *evals, LoopLin *l)
 {
     double f[PP_DIM], j[PP_DIM * PP_DIM];
     double last = 0.0; /* the previous unlimited Newton step's largest component */
     for (int it = 0; it < FAST_ITER; ++it) {
-        full_system(s, c, vin, z, f, j);
+        full_system(s, c, vin, z, f, j, l);
         ++*evals;
         if (solve_structured(j, f) != 0) {
             return 0;
@@ -383,7 +413,7 @@ static int fast_solve(OsPushpullStage *s, double c, double vin, double *z, int *
     return 0;
 }
 
-void os_pushpull_stage_step(OsPushpullStage *s, double vin, OsStepResult *r)
+void os_pushpull_stage_step(OsPushpullStage *s, double vin, double vin_g, OsStepResult *r)
 {
     const double g = OS_TRBDF2_G;
     int evals = 0;
@@ -399,21 +429,24 @@ void os_pushpull_stage_step(OsPushpullStage *s, double vin, OsStepResult *r)
         evals = 0;
     }
     const double x0 = s->z[PP_X];
-    const double vin_g = s->vin + g * (vin - s->vin);
     const double c1 = x0 + s->beta * s->fx;
     double c2, x;
     /* Fast path: trapezoidal stage to t + g h, BDF2 stage to t + h. */
     double z[PP_DIM], zg[PP_DIM];
     memcpy(z, s->z, sizeof(z));
     z[PP_X] = x0 + 2.0 * s->beta * s->fx;
-    int ok = fast_solve(s, c1, vin_g, z, &evals);
+    LoopLin lin_g, lin;
+    int ok = fast_solve(s, c1, vin_g, z, &evals, &lin_g);
+    double xg = 0.0, yg[Y_DIM] = {0.0, 0.0, 0.0, 0.0};
     if (ok) {
         memcpy(zg, z, sizeof(z));
+        xg = zg[PP_X];
+        memcpy(yg, zg + 1, sizeof(yg));
         c2 = OS_TRBDF2_A * zg[PP_X] - OS_TRBDF2_B * x0;
         for (int i = 0; i < PP_DIM; ++i) {
             z[i] = zg[i] + (zg[i] - s->z[i]) * ((1.0 - g) / g);
         }
-        ok = fast_solve(s, c2, vin, z, &evals);
+        ok = fast_solve(s, c2, vin, z, &evals, &lin);
     }
     if (ok) {
         x = z[PP_X];
@@ -427,7 +460,8 @@ void os_pushpull_stage_step(OsPushpullStage *s, double vin, OsStepResult *r)
         const int start = evals;
         memcpy(s->y, s->z + 1, sizeof(s->y));
         s->xy = x0;
-        const double xg = solve_stage(s, c1, vin_g, x0 + 2.0 * s->beta * s->fx, &evals);
+        xg = solve_stage(s, c1, vin_g, x0 + 2.0 * s->beta * s->fx, &evals);
+        memcpy(yg, s->y, sizeof(yg));
         c2 = OS_TRBDF2_A * xg - OS_TRBDF2_B * x0;
         x = solve_stage(s, c2, vin, xg + (xg - x0) * ((1.0 - g) / g), &evals);
         s->starved = evals - start >= (s->starved ? STARVED_BUDGET : STEP_BUDGET);
@@ -460,7 +494,23 @@ void os_pushpull_stage_step(OsPushpullStage *s, double vin, OsStepResult *r)
     const double en = out + s->re * n.ie, ep = out - s->re * p.ie;
     const double pn = n.ic * (s->rail - en) + n.ib * (vo + s->half_bias - en);
     const double pp = p.ic * (ep + s->rail) + p.ib * (ep - (vo - s->half_bias));
+    /* The load voltage's slope d(out)/dx dx/dt at the inner point and at the
+     * end (os_window.h), and the loop derivative (os_stage.c's refinement test). */
+    double jac, gain;
+    if (!ok) {
+        /* the nested path: linearise at its solutions (the fast path kept its
+         * last iterations' linearisations, a Newton step of 0.1 uV away) */
+        double fnet[Y_DIM];
+        (void)loop_at(s, xg, vin_g, yg, &lin_g, fnet);
+        (void)loop_at(s, x, vin, y, &lin, fnet);
+    }
+    loop_slopes(s, &lin_g, &jac, &gain);
+    r->vmid = yg[Y_OUT];
+    r->dvmid = gain * (xg - c1) / s->beta;
+    loop_slopes(s, &lin, &jac, &gain);
     r->vload = out;
+    r->dvload = gain * fx;
+    r->jac = jac;
     r->iload = out * s->g_load;
     r->dissipation = pn + pp;
     r->limiting = s->limit > OS_LIMITING_SHARE;

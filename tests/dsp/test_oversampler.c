@@ -63,7 +63,7 @@ static void latency_is_measured_delay(void **state)
     assert_int_equal(os_oversampler_design(&d), 0);
     for (int factor = 1; factor <= OS_OVERSAMPLE_MAX; factor *= 2) {
         OsOversampler os;
-        os_oversampler_init(&os, &d, factor);
+        os_oversampler_init(&os, &d, factor, 0);
         double y[OS_OVERSAMPLE_MAX];
         double sum = 0.0, moment = 0.0, peak = 0.0;
         int argmax = -1;
@@ -80,13 +80,13 @@ static void latency_is_measured_delay(void **state)
         const double centroid = moment / sum;
         printf("factor %2d: latency %d, centroid %.6f, peak at %d, dc %.9f\n", factor, os.latency,
                centroid, argmax, sum);
-        assert_int_equal(os.latency, os_oversampler_latency(&d, factor));
+        assert_int_equal(os.latency, os_oversampler_latency(&d, factor, 0));
         assert_true(fabs(centroid - os.latency) < 1e-6);
         assert_int_equal(argmax, os.latency);
         assert_true(fabs(sum - 1.0) < 1e-9);
     }
     /* Target of the performance issue: at most 1 ms at 48 kHz at the default 4x. */
-    assert_true(os_oversampler_latency(&d, 4) <= 48);
+    assert_true(os_oversampler_latency(&d, 4, 0) <= 48);
 }
 
 /* Something at the top rate above (1 - OS_PASSBAND) fs must not come back as an
@@ -104,7 +104,7 @@ static void rejects_aliases(void **state)
                 continue;
             }
             OsOversampler os;
-            os_oversampler_init(&os, &d, factor);
+            os_oversampler_init(&os, &d, factor, 0);
             double y[OS_OVERSAMPLE_MAX], peak = 0.0;
             long k = 0;
             for (int i = 0; i < 3000; ++i) {
@@ -132,7 +132,7 @@ static void passband_round_trip(void **state)
     const double f = 0.3; /* host-rate units: 14.4 kHz at 48 kHz */
     for (int factor = 1; factor <= OS_OVERSAMPLE_MAX; factor *= 2) {
         OsOversampler os;
-        os_oversampler_init(&os, &d, factor);
+        os_oversampler_init(&os, &d, factor, 0);
         double y[OS_OVERSAMPLE_MAX], err = 0.0;
         for (int i = 0; i < 2000; ++i) {
             os_oversampler_up(&os, sin(2.0 * M_PI * f * i), y);

@@ -14,6 +14,8 @@
 #include <stdio.h>
 
 #include "os_oversampler.h"
+#include "os_solver.h"
+#include "os_window.h"
 
 #define IMPULSE_FRAMES 256
 
@@ -39,14 +41,19 @@ int main(void)
     }
     for (int f = 1; f <= OS_OVERSAMPLE_MAX; f *= 2) {
         static OsOversampler os;
-        os_oversampler_init(&os, &d, f);
-        printf("factor %d %d %d", os.factor, os_oversampler_latency(&d, f), IMPULSE_FRAMES);
+        os_oversampler_init(&os, &d, f, 0);
+        printf("factor %d %d %d", os.factor, os_oversampler_latency(&d, f, 0), IMPULSE_FRAMES);
         double y[OS_OVERSAMPLE_MAX];
         for (int i = 0; i < IMPULSE_FRAMES; ++i) {
             os_oversampler_up(&os, i == 0 ? 1.0 : 0.0, y);
             printf(" %.17g", os_oversampler_down(&os, y));
         }
         printf("\n");
+    }
+    /* the band-limited sampling's compensation (os_window.h) */
+    printf("trbdf2_g %.17g\n", OS_TRBDF2_G);
+    for (int f = 2; f <= OS_OVERSAMPLE_MAX; f *= 2) {
+        printf("window %d %.17g\n", f, os_window_coefficient(f));
     }
     return ferror(stdout) ? 1 : 0;
 }
