@@ -87,12 +87,15 @@ static inline double os_newton_scalar(OsScalarResidual fn, void *ctx, double gue
         }
         const double step = r / d;
         const double a = fabs(step);
-        /* Converged when this step is below tolerance, or when the iteration is
-         * plainly in its quadratic phase and the step after this one, predicted
-         * from the last two (e_{k+1} ~ K e_k^2 with K = |step| / last^2), would
-         * be below a tenth of it: then this step lands within tolerance and the
-         * evaluation that would confirm it is saved. */
-        if (a <= tol || (a < 0.1 * fabs(last) && a * a * a < 0.1 * tol * last * last)) {
+        /* Converged when this step is below tolerance, or when it is under 100
+         * tolerances, the iteration is plainly in its quadratic phase and the
+         * step after this one, predicted from the last two (e_{k+1} ~ K e_k^2
+         * with K = |step| / last^2), would be below a tenth of it: then this
+         * step lands within tolerance and the evaluation that would confirm it
+         * is saved. The absolute bound keeps a kink in the residual (a clamp's
+         * linear continuation) from passing for quadratic convergence. */
+        if (a <= tol ||
+            (a < 100.0 * tol && a < 0.1 * fabs(last) && a * a * a < 0.1 * tol * last * last)) {
             x -= step;
             break;
         }

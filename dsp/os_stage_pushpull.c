@@ -401,11 +401,15 @@ static int fast_solve(OsPushpullStage *s, double c, double vin, double *z, int *
         z[1 + Y_VBE] = vbe;
         z[1 + Y_VEB] = veb;
         /* Converged: the step was below tolerance, or (as in os_newton_scalar)
-         * the iteration is in its quadratic phase and predicts a next step
-         * below a tenth of the tolerance. */
+         * it is already under 100 tolerances and the iteration, in its
+         * quadratic phase, predicts a next step below a tenth of the
+         * tolerance. (Without the 100-tolerance bound the prediction was
+         * trusted once where the op-amp's clamp is continued linearly, a kink
+         * that breaks the quadratic phase, and a quarter step was accepted
+         * 30 % beyond the current limit.) */
         if (!limited &&
-            (worst <= OUTER_TOL ||
-             (worst < 0.1 * last && worst * worst * worst < 0.1 * OUTER_TOL * last * last))) {
+            (worst <= OUTER_TOL || (worst < 100.0 * OUTER_TOL && worst < 0.1 * last &&
+                                    worst * worst * worst < 0.1 * OUTER_TOL * last * last))) {
             return 1;
         }
         last = limited ? 0.0 : worst;
