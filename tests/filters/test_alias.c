@@ -15,11 +15,11 @@
  * Thresholds: what this build measured on 2026-12-02 (the band-limited
  * sampling of dsp/os_window.h in place), plus a 3 dB margin, rounded to whole
  * dB, except where that margin would let a row fall short of issue 4's target
- * it now meets (-80 dBc at the default 4x: the push-pull loop-0 tone, measured
- * -81.8, is held at -80; loop 1 at 4x, -84.3, at -81). The other rows are not the issue's targets: the test
- * keeps what has been reached from slipping back; tighten a row when the DSP
- * gets better. The meter itself is
- * checked first on a signal whose every component is known. */
+ * it now meets (-80 dBc at the default 4x): the push-pull loop-0 tone,
+ * measured -81.8, is held at -80, loop 1 (-84.3) at -81. The other rows keep
+ * what has been reached from slipping back; tighten a row when the DSP gets
+ * better. The meter itself is checked first on a signal whose every component
+ * is known. */
 
 #include <setjmp.h>
 #include <stdarg.h>
