@@ -79,7 +79,6 @@ static int run_ngspice(const BenchOptions *o, const char *ngspice, const AlTone 
     const double dt = 1.0 / (RATE * GRID);
     const size_t rows = frames * GRID + 1;
     const double tstop = (double)(rows - 1) * dt;
-    const double gain_db = get(s, OS_P_GAIN);
 
     char dir[256], tmpl[1024], netlist[512], log[512], table[512];
     if (sp_mkdtemp(dir, sizeof(dir), "bench") != 0) {
@@ -93,40 +92,16 @@ static int run_ngspice(const BenchOptions *o, const char *ngspice, const AlTone 
     snprintf(table, sizeof(table), "%s/table.txt", dir);
 
     SpSubst sub = {.n = 0};
-    sp_put(&sub, "VIN_AMP", "%.17g",
-           t->amp * get(s, OS_P_FULLSCALE) * pow(10.0, get(s, OS_P_DRIVE) / 20.0));
-    sp_put(&sub, "FREQ", "%.17g", t->freq);
-    sp_put(&sub, "GAIN_DB", "%.17g", gain_db);
-    sp_put(&sub, "RAIL", "%.17g", get(s, OS_P_RAIL));
-    sp_put(&sub, "HEADROOM", "%.17g", get(s, OS_P_HEADROOM));
-    sp_put(&sub, "ILIMIT", "%.17g", get(s, OS_P_ILIMIT) * 1e-3);
-    sp_put(&sub, "RLOAD", "%.17g", get(s, OS_P_LOAD));
-    sp_put(&sub, "GBW", "%.17g", get(s, OS_P_GBW) * 1e6);
-    sp_put(&sub, "SLEW", "%.17g", get(s, OS_P_SLEW) * 1e6);
-    sp_put(&sub, "OS_OPAMP_A0", "%.17g", OS_OPAMP_A0);
-    sp_put(&sub, "OS_VSENSE", "%.17g", OS_VSENSE);
-    sp_put(&sub, "OS_SWING_KNEE", "%.17g", OS_SWING_KNEE);
-    sp_put(&sub, "OS_SWING_MIN_SHARE", "%.17g", OS_SWING_MIN_SHARE);
-    sp_put(&sub, "OS_EXP_MAX", "%.17g", OS_EXP_MAX);
+    SpCircuit k;
+    sp_circuit_of(s, t->amp, t->freq, &k);
+    sp_put_circuit(&sub, &k, pp);
     sp_put(&sub, "OUTFILE", "%s", table);
     size_t cols = 3;
     if (pp) {
-        /* os_bjt.h: Is = 0.1 A / (exp(vbe / VT) - 1) */
-        sp_put(&sub, "IS", "%.17g", OS_BJT_IC_REF / expm1(get(s, OS_P_VBE) / OS_VT));
-        sp_put(&sub, "BETA", "%.17g", get(s, OS_P_BETA));
-        sp_put(&sub, "BIAS", "%.17g", get(s, OS_P_BIAS));
-        sp_put(&sub, "EMITTER_R", "%.17g", get(s, OS_P_EMITTER_R));
-        const char *node = get(s, OS_P_LOOP) >= 0.5 ? "out" : "pin";
-        if (gain_db == 0.0) {
-            sp_put(&sub, "FEEDBACK_R2", "Vfb %s fb 0", node);
-        } else {
-            sp_put(&sub, "FEEDBACK_R2", "R2 %s fb {r2}", node);
-        }
         sp_put(&sub, "ANALYSIS", "tran %.17g %.17g 0 %.17g\nlinearize v(out) v(in) v(pin) v(x)", dt,
                tstop, tmax);
         cols = 5;
     } else {
-        sp_put(&sub, "FEEDBACK_R2", "%s", gain_db == 0.0 ? "Vfb out fb 0" : "R2 out fb {r2}");
         sp_put(&sub, "TSTEP", "%.17g", dt);
         sp_put(&sub, "TMAX", "%.17g", tmax);
         sp_put(&sub, "TSTOP", "%.17g", tstop);

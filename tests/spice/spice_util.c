@@ -3,7 +3,11 @@
 
 #include "spice_util.h"
 
+#include "os_bjt.h"
+#include "os_opamp.h"
+
 #include <errno.h>
+#include <math.h>
 #include <fcntl.h>
 #include <stdarg.h>
 #include <stdio.h>
@@ -237,4 +241,55 @@ void sp_cleanup(const char *dir, const char *const *files, size_t n, int keep, c
         unlink(path);
     }
     rmdir(dir);
+}
+
+void sp_circuit_of(const OsStage *s, double amp, double freq, SpCircuit *k)
+{
+    k->vin_amp = amp * (double)os_stage_get(s, OS_P_FULLSCALE) *
+                 pow(10.0, (double)os_stage_get(s, OS_P_DRIVE) / 20.0);
+    k->freq = freq;
+    k->gain_db = (double)os_stage_get(s, OS_P_GAIN);
+    k->rail = (double)os_stage_get(s, OS_P_RAIL);
+    k->headroom = (double)os_stage_get(s, OS_P_HEADROOM);
+    k->ilimit = (double)os_stage_get(s, OS_P_ILIMIT) * 1e-3;
+    k->load = (double)os_stage_get(s, OS_P_LOAD);
+    k->gbw = (double)os_stage_get(s, OS_P_GBW) * 1e6;
+    k->slew = (double)os_stage_get(s, OS_P_SLEW) * 1e6;
+    /* os_bjt.h: Is = 0.1 A / (exp(vbe / VT) - 1), VT at 300.15 K. */
+    k->is = OS_BJT_IC_REF / expm1((double)os_stage_get(s, OS_P_VBE) / OS_VT);
+    k->beta = (double)os_stage_get(s, OS_P_BETA);
+    k->bias = (double)os_stage_get(s, OS_P_BIAS);
+    k->emitter_r = (double)os_stage_get(s, OS_P_EMITTER_R);
+    k->loop = os_stage_get(s, OS_P_LOOP) >= 0.5f;
+}
+
+void sp_put_circuit(SpSubst *sub, const SpCircuit *k, int follower)
+{
+    sp_put(sub, "VIN_AMP", "%.17g", k->vin_amp);
+    sp_put(sub, "FREQ", "%.17g", k->freq);
+    sp_put(sub, "GAIN_DB", "%.17g", k->gain_db);
+    sp_put(sub, "RAIL", "%.17g", k->rail);
+    sp_put(sub, "HEADROOM", "%.17g", k->headroom);
+    sp_put(sub, "ILIMIT", "%.17g", k->ilimit);
+    sp_put(sub, "RLOAD", "%.17g", k->load);
+    sp_put(sub, "GBW", "%.17g", k->gbw);
+    sp_put(sub, "SLEW", "%.17g", k->slew);
+    sp_put(sub, "OS_OPAMP_A0", "%.17g", OS_OPAMP_A0);
+    sp_put(sub, "OS_VSENSE", "%.17g", OS_VSENSE);
+    sp_put(sub, "OS_SWING_KNEE", "%.17g", OS_SWING_KNEE);
+    sp_put(sub, "OS_SWING_MIN_SHARE", "%.17g", OS_SWING_MIN_SHARE);
+    sp_put(sub, "OS_EXP_MAX", "%.17g", OS_EXP_MAX);
+    /* G = 1 (0 dB): no R2, fb joined to the feedback node. */
+    const char *node = follower && !k->loop ? "pin" : "out";
+    if (k->gain_db == 0.0) {
+        sp_put(sub, "FEEDBACK_R2", "Vfb %s fb 0", node);
+    } else {
+        sp_put(sub, "FEEDBACK_R2", "R2 %s fb {r2}", node);
+    }
+    if (follower) {
+        sp_put(sub, "IS", "%.17g", k->is);
+        sp_put(sub, "BETA", "%.17g", k->beta);
+        sp_put(sub, "BIAS", "%.17g", k->bias);
+        sp_put(sub, "EMITTER_R", "%.17g", k->emitter_r);
+    }
 }

@@ -11,6 +11,8 @@
 
 #include <stddef.h>
 
+#include "outstage.h"
+
 /* Exit status that meson reads as "skipped". */
 #define SP_EXIT_SKIP 77
 
@@ -31,6 +33,24 @@ typedef struct {
 
 /* Give placeholder @p name the printf-formatted value. */
 void sp_put(SpSubst *s, const char *name, const char *fmt, ...) SP_PRINTF(3, 4);
+
+/* The circuit a stage simulates, read back from its ports (port units to SI,
+ * as the port table defines them): what the netlist templates take. */
+typedef struct {
+    double vin_amp; /* stage input peak, V: amp x fullscale x 10^(drive/20) */
+    double freq, gain_db, rail, headroom, ilimit, load, gbw,
+        slew;                         /* Hz, dB, V, V, A, ohm, Hz, V/s */
+    double is, beta, bias, emitter_r; /* the follower (push-pull stage): A, -, V, ohm */
+    int loop;                         /* 1: feedback from the load */
+} SpCircuit;
+
+/* @p k from stage @p s driven by a sine of @p amp full-scale units at @p freq. */
+void sp_circuit_of(const OsStage *s, double amp, double freq, SpCircuit *k);
+
+/* The placeholders both templates share (the op-amp, the load, the source, the
+ * model's constants, FEEDBACK_R2 from the op-amp pin or, with @p follower and
+ * loop 1, from the load) and, with @p follower, the pair's. */
+void sp_put_circuit(SpSubst *sub, const SpCircuit *k, int follower);
 
 /* The whole file at @p path as a string (free() it), or NULL. */
 char *sp_read_text(const char *path);

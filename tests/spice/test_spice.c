@@ -202,11 +202,6 @@ static int teardown(void **state)
     return 0;
 }
 
-static double port_value(const OsStage *s, OsParam p)
-{
-    return (double)os_stage_get(s, p);
-}
-
 static void test_case(void **state)
 {
     CaseState *st = *state;
@@ -218,16 +213,10 @@ static void test_case(void **state)
     /* Circuit values from the stage itself (port units to SI, as the
      * library's port table defines them). */
     OsStage *probe = make_stage(c, 4);
-    const double vin_amp = c->amp * port_value(probe, OS_P_FULLSCALE) *
-                           pow(10.0, port_value(probe, OS_P_DRIVE) / 20.0);
-    const double gain_db = port_value(probe, OS_P_GAIN);
-    const double rail = port_value(probe, OS_P_RAIL);
-    const double headroom = port_value(probe, OS_P_HEADROOM);
-    const double ilimit = port_value(probe, OS_P_ILIMIT) * 1e-3;
-    const double load = port_value(probe, OS_P_LOAD);
-    const double gbw = port_value(probe, OS_P_GBW) * 1e6;
-    const double slew = port_value(probe, OS_P_SLEW) * 1e6;
+    SpCircuit k;
+    sp_circuit_of(probe, c->amp, c->freq, &k);
     os_stage_free(probe);
+    const double vin_amp = k.vin_amp;
 
     const double dt = 1.0 / (HOST_RATE * GRID);
     const size_t grid_per = (size_t)llround(per) * GRID;
@@ -240,22 +229,7 @@ static void test_case(void **state)
     snprintf(wave, sizeof(wave), "%s/wave.txt", st->dir);
 
     SpSubst sub = {.n = 0};
-    sp_put(&sub, "VIN_AMP", "%.17g", vin_amp);
-    sp_put(&sub, "FREQ", "%.17g", c->freq);
-    sp_put(&sub, "GAIN_DB", "%.17g", gain_db);
-    sp_put(&sub, "RAIL", "%.17g", rail);
-    sp_put(&sub, "HEADROOM", "%.17g", headroom);
-    sp_put(&sub, "ILIMIT", "%.17g", ilimit);
-    sp_put(&sub, "RLOAD", "%.17g", load);
-    sp_put(&sub, "GBW", "%.17g", gbw);
-    sp_put(&sub, "SLEW", "%.17g", slew);
-    sp_put(&sub, "OS_OPAMP_A0", "%.17g", OS_OPAMP_A0);
-    sp_put(&sub, "OS_VSENSE", "%.17g", OS_VSENSE);
-    sp_put(&sub, "OS_SWING_KNEE", "%.17g", OS_SWING_KNEE);
-    sp_put(&sub, "OS_SWING_MIN_SHARE", "%.17g", OS_SWING_MIN_SHARE);
-    sp_put(&sub, "OS_EXP_MAX", "%.17g", OS_EXP_MAX);
-    /* G = 1 (0 dB): no R2, fb joined to out. */
-    sp_put(&sub, "FEEDBACK_R2", "%s", gain_db == 0.0 ? "Vfb out fb 0" : "R2 out fb {r2}");
+    sp_put_circuit(&sub, &k, 0);
     sp_put(&sub, "TSTEP", "%.17g", dt);
     sp_put(&sub, "TMAX", "%.17g", dt);
     sp_put(&sub, "TSTOP", "%.17g", tstop);

@@ -166,11 +166,11 @@ static CaseState states[N_CASES];
 static const char *ngspice_path;
 static char template_path[1024];
 
-/* Circuit values in SI units, read back from the stage. */
+/* Circuit values in SI units, read back from the stage (spice_util.h), and
+ * the closed-loop gain G. */
 typedef struct {
-    double vin_amp, freq, gain_db, g, rail, headroom, ilimit, load, gbw, slew;
-    double is, beta, bias, emitter_r;
-    int loop;
+    SpCircuit sp;
+    double g;
 } Circuit;
 
 /* ---- the stage ------------------------------------------------------------ */
@@ -227,30 +227,11 @@ static double *run_stage(const PpCase *c, int factor, float slew)
     return v;
 }
 
-static double get(const OsStage *s, OsParam p)
-{
-    return (double)os_stage_get(s, p);
-}
-
 static void circuit_of(const PpCase *c, Circuit *k)
 {
     OsStage *s = make_stage(c, 4, c->slew);
-    k->vin_amp = c->amp * get(s, OS_P_FULLSCALE) * pow(10.0, get(s, OS_P_DRIVE) / 20.0);
-    k->freq = c->freq;
-    k->gain_db = get(s, OS_P_GAIN);
-    k->g = pow(10.0, k->gain_db / 20.0);
-    k->rail = get(s, OS_P_RAIL);
-    k->headroom = get(s, OS_P_HEADROOM);
-    k->ilimit = get(s, OS_P_ILIMIT) * 1e-3;
-    k->load = get(s, OS_P_LOAD);
-    k->gbw = get(s, OS_P_GBW) * 1e6;
-    k->slew = get(s, OS_P_SLEW) * 1e6;
-    /* os_bjt.h: Is = 0.1 A / (exp(vbe / VT) - 1), VT at 300.15 K. */
-    k->is = OS_BJT_IC_REF / expm1(get(s, OS_P_VBE) / OS_VT);
-    k->beta = get(s, OS_P_BETA);
-    k->bias = get(s, OS_P_BIAS);
-    k->emitter_r = get(s, OS_P_EMITTER_R);
-    k->loop = get(s, OS_P_LOOP) >= 0.5;
+    sp_circuit_of(s, c->amp, c->freq, &k->sp);
+    k->g = pow(10.0, k->sp.gain_db / 20.0);
     os_stage_free(s);
 }
 
@@ -266,30 +247,7 @@ static double *simulate(CaseState *st, const Circuit *k, const char *analysis, s
     snprintf(table, sizeof(table), "%s/table.txt", st->dir);
 
     SpSubst sub = {.n = 0};
-    sp_put(&sub, "VIN_AMP", "%.17g", k->vin_amp);
-    sp_put(&sub, "FREQ", "%.17g", k->freq);
-    sp_put(&sub, "GAIN_DB", "%.17g", k->gain_db);
-    sp_put(&sub, "RAIL", "%.17g", k->rail);
-    sp_put(&sub, "HEADROOM", "%.17g", k->headroom);
-    sp_put(&sub, "ILIMIT", "%.17g", k->ilimit);
-    sp_put(&sub, "RLOAD", "%.17g", k->load);
-    sp_put(&sub, "GBW", "%.17g", k->gbw);
-    sp_put(&sub, "SLEW", "%.17g", k->slew);
-    sp_put(&sub, "IS", "%.17g", k->is);
-    sp_put(&sub, "BETA", "%.17g", k->beta);
-    sp_put(&sub, "BIAS", "%.17g", k->bias);
-    sp_put(&sub, "EMITTER_R", "%.17g", k->emitter_r);
-    sp_put(&sub, "OS_OPAMP_A0", "%.17g", OS_OPAMP_A0);
-    sp_put(&sub, "OS_VSENSE", "%.17g", OS_VSENSE);
-    sp_put(&sub, "OS_SWING_KNEE", "%.17g", OS_SWING_KNEE);
-    sp_put(&sub, "OS_SWING_MIN_SHARE", "%.17g", OS_SWING_MIN_SHARE);
-    sp_put(&sub, "OS_EXP_MAX", "%.17g", OS_EXP_MAX);
-    const char *node = k->loop ? "out" : "pin";
-    if (k->gain_db == 0.0) {
-        sp_put(&sub, "FEEDBACK_R2", "Vfb %s fb 0", node);
-    } else {
-        sp_put(&sub, "FEEDBACK_R2", "R2 %s fb {r2}", node);
-    }
+    sp_put_circuit(&sub, &k->sp, 1);
     sp_put(&sub, "ANALYSIS", "%s", analysis);
     sp_put(&sub, "OUTFILE", "%s", table);
     assert_int_equal(sp_write_netlist(template_path, &sub, netlist), 0);
@@ -425,7 +383,7 @@ static void test_transfer(CaseState *st, const PpCase *c, const Circuit *k)
 {
     /* Reference: ngspice-39 DC sweep of the input source through the circuit. */
     char analysis[128];
-    const double vmax = VSWEEP_SHARE * k->vin_amp;
+    const double vmax = VSWEEP_SHARE * k->sp.vin_amp;
     snprintf(analysis, sizeof(analysis), "dc Vin %.17g %.17g %.17g", -vmax, vmax,
              2.0 * vmax / SWEEP_STEPS);
     size_t rows = 0;
@@ -447,7 +405,7 @@ static void test_transfer(CaseState *st, const PpCase *c, const Circuit *k)
     double *rough = calloc(m, sizeof(*rough));
     assert_true(ref && rough);
     for (size_t j = 0; j < m; ++j) {
-        const double vin = k->vin_amp * sin(2.0 * M_PI * (double)j / (double)m);
+        const double vin = k->sp.vin_amp * sin(2.0 * M_PI * (double)j / (double)m);
         ref[j] = curve_at(&fine, vin);
         rough[j] = curve_at(&coarse, vin);
     }
@@ -480,12 +438,12 @@ static void test_transfer(CaseState *st, const PpCase *c, const Circuit *k)
 
     /* The stage's band-limited output against the unfiltered static curve at
      * the frame times: where they part, and by how much. */
-    const double tau = k->g / (2.0 * M_PI * k->gbw);
+    const double tau = k->g / (2.0 * M_PI * k->sp.gbw);
     double d2 = 0.0, r2 = 0.0, dmax = 0.0, at = 0.0, dmax_tau = 0.0;
     for (size_t i = 0; i < n; ++i) {
         const double ti = (double)i / HOST_RATE;
-        const double want = curve_at(&fine, k->vin_amp * sin(2.0 * M_PI * c->freq * ti));
-        const double late = curve_at(&fine, k->vin_amp * sin(2.0 * M_PI * c->freq * (ti - tau)));
+        const double want = curve_at(&fine, k->sp.vin_amp * sin(2.0 * M_PI * c->freq * ti));
+        const double late = curve_at(&fine, k->sp.vin_amp * sin(2.0 * M_PI * c->freq * (ti - tau)));
         const double d = v[i] - want;
         d2 += d * d;
         r2 += want * want;
@@ -575,8 +533,8 @@ static void test_spectrum(CaseState *st, const PpCase *c, const Circuit *k)
         if (fabs(t[5 * j] - (double)j * dt) > 1e-3 * dt) {
             fail_msg("row %zu at t = %.15g s, expected %.15g s", j, t[5 * j], (double)j * dt);
         }
-        const double want = k->vin_amp * sin(2.0 * M_PI * c->freq * (double)j * dt);
-        in_err = fmax(in_err, fabs(t[5 * j + 2] - want) / k->vin_amp);
+        const double want = k->sp.vin_amp * sin(2.0 * M_PI * c->freq * (double)j * dt);
+        in_err = fmax(in_err, fabs(t[5 * j + 2] - want) / k->sp.vin_amp);
     }
     assert_true(in_err < 1e-6);
 
@@ -591,7 +549,7 @@ static void test_spectrum(CaseState *st, const PpCase *c, const Circuit *k)
         ref[j] = t[5 * (j0 + j) + 1];
         const double dx = (t[5 * (j0 + j + 1) + 4] - t[5 * (j0 + j - 1) + 4]) / (2.0 * dt);
         rate_max = fmax(rate_max, fabs(dx));
-        slewing += fabs(dx) > 0.9 * k->slew;
+        slewing += fabs(dx) > 0.9 * k->sp.slew;
     }
     free(t);
 
@@ -613,7 +571,7 @@ static void test_spectrum(CaseState *st, const PpCase *c, const Circuit *k)
     printf("  fundamental %.6f V (ngspice %.6f V); op-amp slewing %.1f us per half period, "
            "|dx/dt| up to %.3f x SR; steadiness %.1e (ngspice %.1e)\n",
            hypot(pr[1], pi[1]), hypot(sr[1], si[1]),
-           1e6 * (double)slewing * dt / (2.0 * (double)c->periods), rate_max / k->slew, steady,
+           1e6 * (double)slewing * dt / (2.0 * (double)c->periods), rate_max / k->sp.slew, steady,
            steady_ref);
     printf("  odd harmonics, dBc (limit %.0f dB where either is above %.0f dBc; ngspice-39 "
            "transient of the same circuit):\n",
