@@ -422,12 +422,13 @@ static void set_step(OsStage *s, double h)
 
 /* Whether the op-amp changed its regime between two step ends: its current
  * limiter, slew limit or swing clamp engaging or letting go, or (in the
- * push-pull stage) the loop through the follower changing its gain. */
-static int regime_changed(double jac0, const OsStepResult *r, int factor)
+ * push-pull stage) the loop through the follower changing its gain, across a
+ * piece @p share host frames long (the threshold scales with it). */
+static int regime_changed(double jac0, const OsStepResult *r, double share)
 {
     const double a0 = fabs(jac0), a1 = fabs(r->jac);
     const double lo = a0 < a1 ? a0 : a1;
-    return fabs(r->jac - jac0) > REFINE_JAC_4X * 4.0 / factor * lo;
+    return fabs(r->jac - jac0) > REFINE_JAC_4X * 4.0 * share * lo;
 }
 
 /* One step of the circuit (from 0 to du of the oversampled step h) into the
@@ -460,9 +461,8 @@ static void window_add(OsStage *s, double h, double u0, double du, const OsStepR
 static void refine(OsStage *s, const OsOpampStage *so, const OsPushpullStage *sp, double vin,
                    double h, double u0, double du, double jac0, int depth, OsStepResult *r)
 {
-    const int factor = (int)(s->os.factor / du + 0.5);
     const int levels = s->kind == OS_STAGE_PUSHPULL ? REFINE_DEPTH_PUSHPULL : REFINE_DEPTH_OPAMP;
-    if (depth >= levels || !regime_changed(jac0, r, factor)) {
+    if (depth >= levels || !regime_changed(jac0, r, du / s->os.factor)) {
         window_add(s, h, u0, du, r);
         return;
     }
