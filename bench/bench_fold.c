@@ -45,17 +45,21 @@ static int reference_record(const AlTone *t, uint64_t ref, double *rec, size_t n
         return -1;
     }
     const double h = 1.0 / (double)ref;
-    os_opamp_stage_update(op, &p, h);
-    os_opamp_stage_reset(op);
-    os_pushpull_stage_update(pp, &p, h);
-    os_pushpull_stage_reset(pp);
+    const int push = t->kind == OS_STAGE_PUSHPULL;
+    if (push) {
+        os_pushpull_stage_update(pp, &p, h);
+        os_pushpull_stage_reset(pp);
+    } else {
+        os_opamp_stage_update(op, &p, h);
+        os_opamp_stage_reset(op);
+    }
     const size_t settle = (size_t)(ref / 50u);
     const double amp = t->amp * vpf;
     for (size_t i = 0; i < settle + n; ++i) {
         const double v = amp * al_sine(i, (double)ref, t->freq);
         const double vg = amp * sin(2.0 * M_PI * t->freq * ((double)i - 1.0 + OS_TRBDF2_G) * h);
         OsStepResult r;
-        if (t->kind == OS_STAGE_PUSHPULL) {
+        if (push) {
             os_pushpull_stage_step(pp, v, vg, &r);
         } else {
             os_opamp_stage_step(op, v, vg, &r);
