@@ -72,7 +72,7 @@ static void usage(FILE *f)
                "  --alias-seconds S coherent record per alias measurement (1)\n"
                "  --spice-seconds S duration simulated by ngspice per comparison (0.1)\n"
                "  --ngspice PATH    ngspice executable (default: from PATH)\n"
-               "  --spice-dir DIR   directory with the netlist templates (tests/spice)\n"
+               "  --spice-dir DIR   directory with the netlist templates (spice/)\n"
                "  --sections LIST   which parts to run (default all)\n");
 }
 

@@ -22,7 +22,7 @@ typedef struct {
     double alias_seconds;  /**< coherent record per alias measurement, s */
     double spice_seconds;  /**< simulated duration of each ngspice comparison, s */
     const char *ngspice;   /**< ngspice executable, NULL: look in PATH */
-    const char *spice_dir; /**< directory of the netlist templates (tests/spice) */
+    const char *spice_dir; /**< directory of the netlist templates (spice/) */
 } BenchOptions;
 
 /** CPU time of the calling thread, s. */

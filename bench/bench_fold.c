@@ -22,6 +22,7 @@
 #include "alias.h"
 #include "bench.h"
 #include "os_circuit.h"
+#include "os_solver.h"
 
 enum { FOLD_RATE = 48000, REF_MULT_LO = 256, REF_MULT_HI = 512 };
 
@@ -33,43 +34,29 @@ static int reference_record(const AlTone *t, uint64_t ref, double *rec, size_t n
     if (!st) {
         return -1;
     }
-    OsCircuitParams p;
+    double si[OS_P_COUNT];
     double vpf = 0.0;
-    os_stage_circuit(st, &p, &vpf);
+    const OsCircuitOps *ops = os_stage_circuit(st, si, &vpf);
     os_stage_free(st);
-    OsOpampStage *op = calloc(1, sizeof(*op));
-    OsPushpullStage *pp = calloc(1, sizeof(*pp));
-    if (!op || !pp) {
-        free(op);
-        free(pp);
+    void *c = calloc(1, ops->size);
+    if (!c) {
         return -1;
     }
     const double h = 1.0 / (double)ref;
-    const int push = t->kind == OS_STAGE_PUSHPULL;
-    if (push) {
-        os_pushpull_stage_update(pp, &p, h);
-        os_pushpull_stage_reset(pp);
-    } else {
-        os_opamp_stage_update(op, &p, h);
-        os_opamp_stage_reset(op);
-    }
+    ops->update(c, si, h);
+    ops->reset(c);
     const size_t settle = (size_t)(ref / 50u);
     const double amp = t->amp * vpf;
     for (size_t i = 0; i < settle + n; ++i) {
         const double v = amp * al_sine(i, (double)ref, t->freq);
         const double vg = amp * sin(2.0 * M_PI * t->freq * ((double)i - 1.0 + OS_TRBDF2_G) * h);
         OsStepResult r;
-        if (push) {
-            os_pushpull_stage_step(pp, v, vg, &r);
-        } else {
-            os_opamp_stage_step(op, v, vg, &r);
-        }
+        ops->step(c, v, vg, &r);
         if (i >= settle) {
             rec[i - settle] = r.vload;
         }
     }
-    free(op);
-    free(pp);
+    free(c);
     return 0;
 }
 

@@ -2,8 +2,8 @@
 /* SPDX-License-Identifier: ISC */
 
 /* The accurate but slow reference beside the plugin: ngspice runs the same
- * circuit (the netlist templates of tests/spice/, filled in and run by the
- * helpers of tests/spice/spice_util.c) on each standard tone for the same
+ * circuit (the netlist templates of spice/, filled in and run by the
+ * helpers of spice/spice_util.c) on each standard tone for the same
  * simulated duration, timed by its process's CPU time. Twice: with the 81 ns
  * maximum step of the spice tests (their accuracy, checked there against a
  * 20 ns step), and with the plugin's own step at the default 4x (5.2 us at
@@ -270,7 +270,7 @@ int bench_spice(const BenchOptions *o)
     const char *ngspice = o->ngspice ? o->ngspice : sp_find_ngspice();
     printf("\n## Side by side: ngspice, the plugin and the static curves\n\n");
     if (!ngspice || !o->spice_dir) {
-        printf("ngspice %s: skipped (give --ngspice PATH and --spice-dir tests/spice).\n",
+        printf("ngspice %s: skipped (give --ngspice PATH and --spice-dir spice).\n",
                ngspice ? "found, but no --spice-dir" : "not found");
         return 0;
     }
@@ -291,7 +291,7 @@ int bench_spice(const BenchOptions *o)
     const size_t i0 = frames - win;
     const double tmax[2] = {1.0 / (RATE * TIGHT_STEPS_PER_FRAME), 1.0 / (RATE * 4.0)};
 
-    printf("ngspice: %s, the netlists of tests/spice/ (reltol 1e-6, gear), %.4g s of each "
+    printf("ngspice: %s, the netlists of spice/ (reltol 1e-6, gear), %.4g s of each "
            "standard tone at 48 kHz, output on a %.0f kHz grid; CPU time of the ngspice "
            "process (user + system; writing its table included). Error: harmonics below "
            "20 kHz over the last %.1f ms (whole periods), against ngspice at 81 ns "

@@ -257,23 +257,5 @@ double cli_settings_volts_per_unit(const CliSettings *s)
 
 double cli_settings_expected_limit(const CliSettings *s, int *current_limited)
 {
-    const double rail = (double)s->value[OS_P_RAIL];
-    const double swing_op = fmax(rail - (double)s->value[OS_P_HEADROOM], 0.05 * rail);
-    const double ilim = 1e-3 * (double)s->value[OS_P_ILIMIT];
-    const double rl = (double)s->value[OS_P_LOAD];
-    double swing, ilimit_v;
-    if (s->kind == OS_STAGE_PUSHPULL) {
-        /* The follower loses one vbe; the pair multiplies the current by beta + 1. */
-        swing = fmax(swing_op - (double)s->value[OS_P_VBE], 0.05 * rail);
-        ilimit_v = ((double)s->value[OS_P_BETA] + 1.0) * ilim * rl;
-    } else {
-        swing = swing_op;
-        /* The feedback divider (10 kOhm, OS_FEEDBACK_TOTAL in dsp/os_circuit.h)
-         * also draws on the limited current. */
-        ilimit_v = ilim * rl * 10.0e3 / (rl + 10.0e3);
-    }
-    if (current_limited) {
-        *current_limited = ilimit_v < swing;
-    }
-    return fmin(swing, ilimit_v);
+    return os_stage_expected_limit(s->kind, s->value, current_limited);
 }

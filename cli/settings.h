@@ -75,14 +75,8 @@ double cli_settings_gain(const CliSettings *s);
 /** Volts at the stage input per unit sample: fullscale x 10^(drive/20). */
 double cli_settings_volts_per_unit(const CliSettings *s);
 
-/**
- * Where the stage's output should stop growing, from the component values:
- * the swing (rail - headroom, less one vbe through the follower) or the
- * current limit times the load (ilimit x (R_L || 10 kOhm) for the op-amp stage,
- * (beta + 1) ilimit R_L through the pair), whichever is lower. Returns that
- * load voltage in V; *current_limited says which one it is. An estimate for
- * choosing sweep ranges, not a measurement.
- */
+/** Where the stage's output should stop growing, and whether the current limit
+ *  or the swing sets it: os_stage_expected_limit() for the values of @p s. */
 double cli_settings_expected_limit(const CliSettings *s, int *current_limited);
 
 #endif

@@ -7,16 +7,16 @@
 
 #include <math.h>
 
-void os_opamp_coeffs(const OsOpampParams *p, OsOpampCoeffs *c)
+void os_opamp_coeffs_from(const double *si, OsOpampCoeffs *c)
 {
-    const double wt = 2.0 * M_PI * p->gbw;
-    c->sr = p->slew;
-    c->kin = wt / p->slew;
+    const double wt = 2.0 * M_PI * si[OS_P_GBW], slew = si[OS_P_SLEW], rail = si[OS_P_RAIL];
+    c->sr = slew;
+    c->kin = wt / slew;
     c->wp = wt / OS_OPAMP_A0;
-    c->vsw = fmax(p->rail - p->headroom, OS_SWING_MIN_SHARE * p->rail);
+    c->vsw = fmax(rail - si[OS_P_HEADROOM], OS_SWING_MIN_SHARE * rail);
     c->inv_w = 1.0 / OS_SWING_KNEE;
-    c->ilim = p->ilimit;
-    c->rs = OS_VSENSE / p->ilimit;
+    c->ilim = si[OS_P_ILIMIT];
+    c->rs = OS_VSENSE / si[OS_P_ILIMIT];
     /* Ik = VT / Rs: the sense transistor's collector current grows e-fold for
      * every VT across Rs (Ebers-Moll forward-active approximation). */
     c->inv_ik = c->rs / OS_VT;

@@ -37,6 +37,7 @@
 #define OS_OPAMP_H
 
 #include "os_fastmath.h"
+#include "os_ports.h"
 
 #ifdef __cplusplus
 extern "C" {
@@ -65,16 +66,7 @@ extern "C" {
 /** Thermal voltage kT/q at 27 degC, the SPICE default temperature: 25.86 mV. */
 #define OS_VT (OS_BOLTZMANN * OS_T_NOMINAL / OS_CHARGE)
 
-/** Physical op-amp parameters in SI units. */
-typedef struct {
-    double gbw;      /**< gain-bandwidth product, Hz */
-    double slew;     /**< slew rate, V/s */
-    double rail;     /**< supply, each side, V */
-    double headroom; /**< swing short of each rail, V */
-    double ilimit;   /**< output current limit, A */
-} OsOpampParams;
-
-/** Coefficients derived from OsOpampParams. */
+/** Coefficients derived from the op-amp's parameters. */
 typedef struct {
     double sr;     /**< slew rate, V/s */
     double kin;    /**< wt / SR, 1/V */
@@ -86,8 +78,10 @@ typedef struct {
     double rs;     /**< sense resistor, ohm */
 } OsOpampCoeffs;
 
-/** Derive coefficients from @p p. Real-time safe. */
-void os_opamp_coeffs(const OsOpampParams *p, OsOpampCoeffs *c);
+/** Derive coefficients from a stage's parameters @p si (SI units, indexed by
+ *  OsParam: gbw in Hz, slew in V/s, rail and headroom in V, ilimit in A).
+ *  Real-time safe. */
+void os_opamp_coeffs_from(const double *si, OsOpampCoeffs *c);
 
 /** Rate of the internal node and its partial derivatives. */
 typedef struct {

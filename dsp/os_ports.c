@@ -21,53 +21,62 @@ static const OsScalePoint loop_points[] = {
     {0.0f, "feedback from op-amp output"}, {1.0f, "feedback from load"}, {0.0f, NULL}};
 
 #define AUDIO_IN                                                                                   \
-    {"in", "In", "", OS_PORT_AUDIO_IN, 0, 0, 0, 0, -1, NULL, "Audio input."},                      \
+    {"in", "In", "", OS_PORT_AUDIO_IN, 0, 0, 0, 0, -1, NULL, "Audio input.", 0, 0, 0.0},           \
     {                                                                                              \
-        "out", "Out", "", OS_PORT_AUDIO_OUT, 0, 0, 0, 0, -1, NULL, "Audio output."                 \
+        "out", "Out", "", OS_PORT_AUDIO_OUT, 0, 0, 0, 0, -1, NULL, "Audio output.", 0, 0, 0.0      \
     }
 
-#define CTL(sym, nm, un, lo, hi, df, fl, id, pts, cm)                                              \
+/* A control input: ..., how it is smoothed (OS_SMOOTH_*), its SI conversion
+ * (OS_SI_*) and scale, its comment. */
+#define CTL(sym, nm, un, lo, hi, df, fl, id, pts, sm, si, scale, cm)                               \
     {                                                                                              \
-        sym, nm, un, OS_PORT_CONTROL_IN, lo, hi, df, fl, id, pts, cm                               \
+        sym, nm, un, OS_PORT_CONTROL_IN, lo, hi, df, fl, id, pts, cm, sm, si, scale                \
     }
+#define LIN OS_SMOOTH_LINEAR
+#define LOG OS_SMOOTH_LOG
 
 #define METER(sym, nm, un, hi, fl, id, cm)                                                         \
     {                                                                                              \
-        sym, nm, un, OS_PORT_CONTROL_OUT, 0.0f, hi, 0.0f, fl, id, NULL, cm                         \
+        sym, nm, un, OS_PORT_CONTROL_OUT, 0.0f, hi, 0.0f, fl, id, NULL, cm, 0, 0, 0.0              \
     }
 
 #define COMMON_HEAD                                                                                \
     CTL("enable", "Enable", "", 0.0f, 1.0f, 1.0f, OS_PF_TOGGLE | OS_PF_ENABLE, OS_P_ENABLE,        \
-        enable_points, "Processing on; off passes the input through, latency-aligned."),           \
+        enable_points, OS_SMOOTH_FADE, OS_SI_SCALE, 1.0,                                           \
+        "Processing on; off passes the input through, latency-aligned."),                          \
         CTL("fullscale", "Full scale", "V", 0.01f, 20.0f, 1.0f, OS_PF_LOGARITHMIC, OS_P_FULLSCALE, \
-            NULL, "Stage input voltage (peak) that a 0 dBFS sample stands for."),                  \
-        CTL("drive", "Drive", "dB", -24.0f, 36.0f, 0.0f, 0, OS_P_DRIVE, NULL,                      \
+            NULL, LOG, OS_SI_SCALE, 1.0,                                                           \
+            "Stage input voltage (peak) that a 0 dBFS sample stands for."),                        \
+        CTL("drive", "Drive", "dB", -24.0f, 36.0f, 0.0f, 0, OS_P_DRIVE, NULL, LIN, OS_SI_DB, 1.0,  \
             "Gain in front of the stage."),                                                        \
-        CTL("gain", "Closed-loop gain", "dB", 0.0f, 40.0f, 6.0f, 0, OS_P_GAIN, NULL,               \
+        CTL("gain", "Closed-loop gain", "dB", 0.0f, 40.0f, 6.0f, 0, OS_P_GAIN, NULL, LIN,          \
+            OS_SI_DB, 1.0,                                                                         \
             "Closed-loop voltage gain 20 log10(1 + R2/R1) of the non-inverting amplifier."),       \
-        CTL("rail", "Supply rail", "V", 1.5f, 60.0f, 12.0f, 0, OS_P_RAIL, NULL,                    \
-            "Supply voltage on each side (+rail and -rail)."),                                     \
-        CTL("headroom", "Swing headroom", "V", 0.0f, 5.0f, 1.5f, 0, OS_P_HEADROOM, NULL,           \
-            "How far the op-amp output swing stops short of each rail."),                          \
-        CTL("ilimit", "Current limit", "mA", 1.0f, 200.0f, 25.0f, 0, OS_P_ILIMIT, NULL,            \
-            "Op-amp output current limit in each direction.")
+        CTL("rail", "Supply rail", "V", 1.5f, 60.0f, 12.0f, 0, OS_P_RAIL, NULL, LIN, OS_SI_SCALE,  \
+            1.0, "Supply voltage on each side (+rail and -rail)."),                                \
+        CTL("headroom", "Swing headroom", "V", 0.0f, 5.0f, 1.5f, 0, OS_P_HEADROOM, NULL, LIN,      \
+            OS_SI_SCALE, 1.0, "How far the op-amp output swing stops short of each rail."),        \
+        CTL("ilimit", "Current limit", "mA", 1.0f, 200.0f, 25.0f, 0, OS_P_ILIMIT, NULL, LIN,       \
+            OS_SI_SCALE, 1e-3, "Op-amp output current limit in each direction.")
 
 #define COMMON_TAIL                                                                                \
     CTL("gbw", "Gain-bandwidth", "MHz", 0.1f, 100.0f, 1.0f, OS_PF_LOGARITHMIC, OS_P_GBW, NULL,     \
-        "Op-amp gain-bandwidth product."),                                                         \
+        LOG, OS_SI_SCALE, 1e6, "Op-amp gain-bandwidth product."),                                  \
         CTL("slew", "Slew rate", "V/us", 0.1f, 100.0f, 0.5f, OS_PF_LOGARITHMIC, OS_P_SLEW, NULL,   \
-            "Op-amp slew rate."),                                                                  \
+            LOG, OS_SI_SCALE, 1e6, "Op-amp slew rate."),                                           \
         CTL("oversample", "Oversampling", "x", 1.0f, 16.0f, 4.0f,                                  \
             OS_PF_ENUMERATION | OS_PF_INTEGER, OS_P_OVERSAMPLE, oversample_points,                 \
+            OS_SMOOTH_RESTART, OS_SI_SCALE, 1.0,                                                   \
             "Oversampling factor of the circuit simulation."),                                     \
         CTL("listen", "Listen", "", 0.0f, 1.0f, 0.0f, OS_PF_ENUMERATION | OS_PF_INTEGER,           \
-            OS_P_LISTEN, listen_points,                                                            \
+            OS_P_LISTEN, listen_points, OS_SMOOTH_FADE, OS_SI_SCALE, 1.0,                          \
             "0 plays the output, 1 the residual: the output minus the ideal linear response."),    \
-        CTL("trim", "Output trim", "dB", -24.0f, 24.0f, 0.0f, 0, OS_P_TRIM, NULL, "Output gain.")
+        CTL("trim", "Output trim", "dB", -24.0f, 24.0f, 0.0f, 0, OS_P_TRIM, NULL, LIN, OS_SI_DB,   \
+            1.0, "Output gain.")
 
 #define LOAD(df)                                                                                   \
-    CTL("load", "Load", "ohm", 1.0f, 100000.0f, df, OS_PF_LOGARITHMIC, OS_P_LOAD, NULL,            \
-        "Load resistance from the output to ground.")
+    CTL("load", "Load", "ohm", 1.0f, 100000.0f, df, OS_PF_LOGARITHMIC, OS_P_LOAD, NULL, LOG,       \
+        OS_SI_SCALE, 1.0, "Load resistance from the output to ground.")
 
 #define METERS_HEAD                                                                                \
     METER("peak_current", "Peak load current", "A", 100.0f, 0, OS_M_PEAK_CURRENT,                  \
@@ -91,16 +100,16 @@ static const OsPortInfo pushpull_ports[] = {
     COMMON_HEAD,
     LOAD(8.0f),
     COMMON_TAIL,
-    CTL("beta", "Transistor beta", "", 10.0f, 500.0f, 70.0f, 0, OS_P_BETA, NULL,
-        "Forward current gain of each output transistor."),
-    CTL("vbe", "Base-emitter voltage", "V", 0.4f, 1.0f, 0.65f, 0, OS_P_VBE, NULL,
-        "Base-emitter voltage at 100 mA collector current and 27 degC."),
-    CTL("bias", "Bias", "V", 0.0f, 2.0f, 0.0f, 0, OS_P_BIAS, NULL,
+    CTL("beta", "Transistor beta", "", 10.0f, 500.0f, 70.0f, 0, OS_P_BETA, NULL, LIN, OS_SI_SCALE,
+        1.0, "Forward current gain of each output transistor."),
+    CTL("vbe", "Base-emitter voltage", "V", 0.4f, 1.0f, 0.65f, 0, OS_P_VBE, NULL, LIN, OS_SI_SCALE,
+        1.0, "Base-emitter voltage at 100 mA collector current and 27 degC."),
+    CTL("bias", "Bias", "V", 0.0f, 2.0f, 0.0f, 0, OS_P_BIAS, NULL, LIN, OS_SI_SCALE, 1.0,
         "DC voltage between the two bases: 0 is class B, about 2 x vbe is class AB."),
-    CTL("emitter_r", "Emitter resistor", "ohm", 0.0f, 10.0f, 0.22f, 0, OS_P_EMITTER_R, NULL,
-        "Emitter resistor of each transistor."),
+    CTL("emitter_r", "Emitter resistor", "ohm", 0.0f, 10.0f, 0.22f, 0, OS_P_EMITTER_R, NULL, LIN,
+        OS_SI_SCALE, 1.0, "Emitter resistor of each transistor."),
     CTL("loop", "Feedback point", "", 0.0f, 1.0f, 1.0f, OS_PF_ENUMERATION | OS_PF_INTEGER,
-        OS_P_LOOP, loop_points,
+        OS_P_LOOP, loop_points, OS_SMOOTH_JUMP, OS_SI_SCALE, 1.0,
         "0 takes feedback from the op-amp output, 1 from the load (follower inside the loop)."),
     METERS_HEAD,
     METER("dissipation", "Transistor dissipation", "W", 10000.0f, 0, OS_M_DISSIPATION,

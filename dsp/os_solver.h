@@ -8,8 +8,8 @@
  * Circuits are integrated with TR-BDF2 (Bank, Coughran, Fichtner, Grosse, Rose
  * and Smith, "Transient simulation of silicon devices and circuits", IEEE Trans.
  * CAD 4(4), 1985; Hosea and Shampine, "Analysis and implementation of TR-BDF2",
- * Appl. Numer. Math. 20, 1996): a trapezoidal stage to t + g h, then a BDF2
- * stage to t + h, with g = 2 - sqrt(2):
+ * Appl. Numer. Math. 20, 1996): a trapezoidal sub-step to t + g h, then a BDF2
+ * sub-step to t + h, with g = 2 - sqrt(2):
  *
  *   x_g     = x_n + (g h / 2) (f_n + f(x_g))
  *   x_{n+1} = (x_g - (1 - g)^2 x_n) / (g (2 - g)) + ((1 - g) / (2 - g)) h f(x_{n+1})
@@ -19,9 +19,9 @@
  * where the plain trapezoidal rule would leave them ringing at the Nyquist
  * frequency. Its error constant is far smaller than BDF2's: on a slewing op-amp
  * at 4x oversampling the error against ngspice fell from 2 % (BDF2) to 0.1 %.
- * With this g both stages have the form x = c + beta f(x) with the same
- * beta = g h / 2, and f at the new point follows from the converged stage as
- * (x - c) / beta, so each step costs two implicit solves and no extra
+ * With this g both sub-steps have the form x = c + w f(x) with the same weight
+ * w = g h / 2 (a time, s), and f at the new point follows from the converged
+ * sub-step as (x - c) / w, so each step costs two implicit solves and no extra
  * evaluation. Each implicit equation is solved by Newton-Raphson.
  */
 
@@ -36,13 +36,13 @@ extern "C" {
 
 /** g = 2 - sqrt(2), the TR-BDF2 split point. */
 #define OS_TRBDF2_G 0.58578643762690485
-/** Weights of the BDF2 stage: x_{n+1} = A x_g - B x_n + beta f(x_{n+1}). */
+/** Coefficients of the BDF2 sub-step: x_{n+1} = A x_g - B x_n + w f(x_{n+1}). */
 #define OS_TRBDF2_A (1.0 / (OS_TRBDF2_G * (2.0 - OS_TRBDF2_G)))
 #define OS_TRBDF2_B                                                                                \
     ((1.0 - OS_TRBDF2_G) * (1.0 - OS_TRBDF2_G) / (OS_TRBDF2_G * (2.0 - OS_TRBDF2_G)))
 
-/** beta = g h / 2 of both TR-BDF2 stages for step @p h (s). */
-static inline double os_trbdf2_beta(double h)
+/** The weight w = g h / 2 (s) of both TR-BDF2 sub-steps for step @p h (s). */
+static inline double os_trbdf2_weight(double h)
 {
     return 0.5 * OS_TRBDF2_G * h;
 }

@@ -4,7 +4,7 @@
 #
 # The benchmark of docs/performance.md: installs what is missing, builds a
 # release build in build-bench/ (or $OUTSTAGE_BENCH_BUILD), runs
-# outstage-bench once with ngspice and the netlists of tests/spice/, and writes
+# outstage-bench once with ngspice and the netlists of spice/, and writes
 # the markdown tables, headed by what machine and build they come from, to
 # build-bench/bench-results.md (or the file given with --out). Other arguments go to
 # outstage-bench, e.g. --quick for a short run that only shows it works.
@@ -41,7 +41,7 @@ ninja -C "$builddir" bench/outstage-bench >/dev/null
 mkdir -p "$(dirname "$out")"
 
 ngspice=$(command -v ngspice || true)
-spice_args=(--spice-dir "$PWD/tests/spice")
+spice_args=(--spice-dir "$PWD/spice")
 if [ -n "$ngspice" ]; then
   spice_args+=(--ngspice "$ngspice")
 fi

@@ -40,6 +40,6 @@ echo "== lint (cppcheck, clang-tidy)"
 bash scripts/lint.sh build
 
 echo "== benchmark (brief, to see that it runs)"
-./build/bench/outstage-bench --quick --ngspice "$(command -v ngspice)" --spice-dir tests/spice >/dev/null
+./build/bench/outstage-bench --quick --ngspice "$(command -v ngspice)" --spice-dir spice >/dev/null
 
 echo "all checks passed"

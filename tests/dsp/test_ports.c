@@ -38,6 +38,46 @@ static const Expect pushpull_only[] = {
     {"emitter_r", 0, 10, 0.22f, "ohm"}, {"loop", 0, 1, 1, ""},
 };
 
+/* The SI unit of each port unit (SI prefixes, BIPM SI Brochure, 9th ed.,
+ * 2019): what the circuits are given. dB ports become ratios 10^(dB/20). */
+static const struct {
+    const char *unit;
+    OsSiKind si;
+    double scale;
+} si_units[] = {
+    {"", OS_SI_SCALE, 1.0},     {"V", OS_SI_SCALE, 1.0},   {"ohm", OS_SI_SCALE, 1.0},
+    {"x", OS_SI_SCALE, 1.0},    {"mA", OS_SI_SCALE, 1e-3}, {"MHz", OS_SI_SCALE, 1e6},
+    {"V/us", OS_SI_SCALE, 1e6}, {"dB", OS_SI_DB, 1.0},
+};
+
+/* A control's conversion to SI units and its smoothing follow from its unit
+ * and its kind: the contract's "logarithmic" controls glide on a log scale,
+ * enable and listen crossfade, the oversampling factor restarts the filters,
+ * the feedback point switches at once, every other control glides linearly. */
+static void check_conversion(const OsPortInfo *p)
+{
+    int found = 0;
+    for (size_t i = 0; i < sizeof(si_units) / sizeof(si_units[0]); ++i) {
+        if (strcmp(si_units[i].unit, p->unit) == 0) {
+            found = 1;
+            assert_int_equal(p->si, si_units[i].si);
+            if (p->si == OS_SI_SCALE) {
+                assert_true(p->si_scale == si_units[i].scale);
+            }
+        }
+    }
+    assert_true(found);
+    OsSmooth want = (p->flags & OS_PF_LOGARITHMIC) ? OS_SMOOTH_LOG : OS_SMOOTH_LINEAR;
+    if (p->id == OS_P_ENABLE || p->id == OS_P_LISTEN) {
+        want = OS_SMOOTH_FADE;
+    } else if (p->id == OS_P_OVERSAMPLE) {
+        want = OS_SMOOTH_RESTART;
+    } else if (p->id == OS_P_LOOP) {
+        want = OS_SMOOTH_JUMP;
+    }
+    assert_int_equal(p->smooth, want);
+}
+
 static void check_control(OsStageKind k, uint32_t idx, const Expect *e, float load_def)
 {
     const OsPortInfo *p = os_port_get(k, idx);
@@ -48,6 +88,7 @@ static void check_control(OsStageKind k, uint32_t idx, const Expect *e, float lo
     assert_true(p->def == (e->def < 0 ? load_def : e->def));
     assert_string_equal(p->unit, e->unit);
     assert_ptr_equal(os_port_for_param(k, (OsParam)p->id), p);
+    check_conversion(p);
 }
 
 static void check_stage(OsStageKind k, float load_def, const char *const *outputs, size_t nout)

@@ -12,7 +12,7 @@
  *
  * Environment: OS_NGSPICE the ngspice executable (empty: not found, the test
  * is skipped), OS_SPICE_DIR the directory of the netlist templates
- * (tests/spice). OS_SPICE_KEEP=1 keeps
+ * (spice/). OS_SPICE_KEEP=1 keeps
  * the temporary directory with the netlist, the log and the waveform. An
  * argument selects cases by name (cmocka filter, e.g. "opamp_slew"). */
 

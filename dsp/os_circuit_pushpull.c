@@ -1,7 +1,7 @@
 /* Copyright 2026 outstage developers */
 /* SPDX-License-Identifier: ISC */
 
-/* The push-pull stage circuit. The op-amp of os_opamp.h drives, from its
+/* The push-pull stage's circuit. The op-amp of os_opamp.h drives, from its
  * output pin vo, the joined bases of an NPN (collector at +rail) and a PNP
  * (collector at -rail) through a bias source: the NPN base sits at vo + bias/2,
  * the PNP base at vo - bias/2. Each emitter reaches the output node through
@@ -20,7 +20,7 @@
  * solved by Newton-Raphson with SPICE's junction limiting, continuing from the
  * last solution in smaller moves of x if a direct solve fails (source stepping).
  *
- * Each TR-BDF2 stage then needs x with R(x) = x - c - beta f(x, vd, io) = 0,
+ * Each TR-BDF2 sub-step then needs x with R(x) = x - c - w f(x, vd, io) = 0,
  * vd = vin - v_fb / G, v_fb = vo (loop 0) or out (loop 1). Raising x raises vo,
  * out and the op-amp's output current, and every term of f falls with those, so
  * R increases strictly with x, and the safeguarded scalar Newton iteration of
@@ -29,44 +29,85 @@
 
 #include "os_circuit.h"
 
+#include "os_bjt.h"
+#include "os_opamp.h"
+#include "os_solver.h"
+
 #include <math.h>
 #include <string.h>
 
+/* Network evaluations the circuit may spend on one oversampled step beyond its
+ * fast path (2 x 12); a gentle step takes 4 to 10. Settings far outside
+ * physical sense (2 V of bias across junctions whose vbe is 0.4 V with no
+ * emitter resistors: gigaamperes of idle current) can make Newton work hard;
+ * the cap keeps the cost of any step bounded, holding the last good network
+ * solution once it is spent. */
+#define STEP_BUDGET 300
+#define FAST_EVALS 24
+/* The budget of a step that follows one which spent all of its own. */
+#define STARVED_BUDGET 40
+
+/* Unknowns of the fast path's Newton system, and of the network alone. */
+enum { PP_X = 0, PP_VO, PP_OUT, PP_VBE_N, PP_VEB_P, PP_DIM };
 enum { Y_VO = 0, Y_OUT, Y_VBE, Y_VEB, Y_DIM };
+
+typedef struct {
+    OsOpampCoeffs op;
+    OsBjt q; /* both transistors (matched, complementary) */
+    double inv_g;
+    double g_load; /* 1 / R_load */
+    double g_fb;   /* 1 / (R1 + R2) */
+    double re;     /* emitter resistor, ohm */
+    double half_bias;
+    double rail;
+    int loop; /* 1: feedback from the load */
+    double h; /* step, s */
+    double w; /* TR-BDF2 weight of the step being taken, s */
+    /* state at the last step: x and the network (vo, out, vbe_n, veb_p) */
+    double z[PP_DIM];
+    double fx, vin;
+    int fresh;   /* no step since reset: find the operating point first */
+    int starved; /* the last nested step spent its whole budget */
+    int budget;  /* evaluation count at which the present step stops trying */
+    /* the last network solution, at x = xy: warm start of the next solve */
+    double y[PP_DIM - 1];
+    double xy;
+    double limit; /* op-amp limiter share at the last evaluation */
+} OsPushpullCircuit;
 
 #define INNER_ITER 40
 #define INNER_TOL 1e-10 /* V */
 #define OUTER_TOL 1e-7  /* V */
 #define OUTER_ITER 60
 #define MAX_HALVINGS 8 /* source stepping: up to 256 moves of x */
-#define FAST_ITER (OS_PUSHPULL_FAST_EVALS / 2)
-#define STEP_BUDGET OS_PUSHPULL_STEP_BUDGET
-#define STARVED_BUDGET OS_PUSHPULL_STARVED_BUDGET
+#define FAST_ITER (FAST_EVALS / 2)
 
-void os_pushpull_stage_update(OsPushpullStage *s, const OsCircuitParams *p, double h)
+static void update(void *c, const double *si, double h)
 {
-    const OsOpampParams op = {p->gbw, p->slew, p->rail, p->headroom, p->ilimit};
-    os_opamp_coeffs(&op, &s->op);
-    os_bjt_init(&s->q, p->vbe, p->beta);
-    s->inv_g = 1.0 / p->gain;
-    s->g_load = 1.0 / p->load;
+    OsPushpullCircuit *s = c;
+    os_opamp_coeffs_from(si, &s->op);
+    os_bjt_init(&s->q, si[OS_P_VBE], si[OS_P_BETA]);
+    s->inv_g = 1.0 / si[OS_P_GAIN];
+    s->g_load = 1.0 / si[OS_P_LOAD];
     s->g_fb = 1.0 / OS_FEEDBACK_TOTAL;
-    s->re = p->emitter_r;
-    s->half_bias = 0.5 * p->bias;
-    s->rail = p->rail;
-    s->loop = p->loop >= 0.5;
+    s->re = si[OS_P_EMITTER_R];
+    s->half_bias = 0.5 * si[OS_P_BIAS];
+    s->rail = si[OS_P_RAIL];
+    s->loop = si[OS_P_LOOP] >= 0.5;
     s->h = h;
-    s->beta = os_trbdf2_beta(h);
+    s->w = os_trbdf2_weight(h);
 }
 
-void os_pushpull_stage_set_step(OsPushpullStage *s, double h)
+static void set_step(void *c, double h)
 {
+    OsPushpullCircuit *s = c;
     s->h = h;
-    s->beta = os_trbdf2_beta(h);
+    s->w = os_trbdf2_weight(h);
 }
 
-void os_pushpull_stage_reset(OsPushpullStage *s)
+static void reset(void *c)
 {
+    OsPushpullCircuit *s = c;
     memset(s->z, 0, sizeof(s->z));
     memset(s->y, 0, sizeof(s->y));
     s->xy = 0.0;
@@ -78,8 +119,9 @@ void os_pushpull_stage_reset(OsPushpullStage *s)
     s->budget = STEP_BUDGET;
 }
 
-int os_pushpull_stage_ok(const OsPushpullStage *s)
+static int ok(const void *c)
 {
+    const OsPushpullCircuit *s = c;
     int ok = isfinite(s->fx) && isfinite(s->vin);
     for (int i = 0; i < PP_DIM; ++i) {
         ok = ok && isfinite(s->z[i]);
@@ -88,7 +130,7 @@ int os_pushpull_stage_ok(const OsPushpullStage *s)
 }
 
 /* Both transistors at y. */
-static void transistors(const OsPushpullStage *s, const double *y, OsBjtEval *n, OsBjtEval *p)
+static void transistors(const OsPushpullCircuit *s, const double *y, OsBjtEval *n, OsBjtEval *p)
 {
     const double vo = y[Y_VO];
     os_bjt_eval(&s->q, y[Y_VBE], vo + s->half_bias - s->rail, n);
@@ -101,7 +143,7 @@ typedef struct {
     double io, d_vo, d_vbe, d_veb;
 } Drive;
 
-static Drive drive_current(const OsPushpullStage *s, const double *y, const OsBjtEval *n,
+static Drive drive_current(const OsPushpullCircuit *s, const double *y, const OsBjtEval *n,
                            const OsBjtEval *p)
 {
     const double gfb_o = s->loop ? 0.0 : s->g_fb;
@@ -115,7 +157,7 @@ static Drive drive_current(const OsPushpullStage *s, const double *y, const OsBj
 
 /* Inner residual F(y; x) and its Jacobian (row-major); *d receives the
  * op-amp's output current there. */
-static void network(const OsPushpullStage *s, double x, const double *y, double *f, double *j,
+static void network(const OsPushpullCircuit *s, double x, const double *y, double *f, double *j,
                     Drive *drive)
 {
     OsBjtEval n, p;
@@ -153,7 +195,7 @@ static void network(const OsPushpullStage *s, double x, const double *y, double 
 
 /* Newton-Raphson on F(y; x) = 0 from y, with junction limiting. Returns 1 on
  * convergence (a full, unlimited step below INNER_TOL). *evals counts. */
-static int solve_network(const OsPushpullStage *s, double x, double *y, int *evals)
+static int solve_network(const OsPushpullCircuit *s, double x, double *y, int *evals)
 {
     double f[Y_DIM], j[Y_DIM * Y_DIM];
     for (int it = 0; it < INNER_ITER; ++it) {
@@ -186,7 +228,7 @@ static int solve_network(const OsPushpullStage *s, double x, double *y, int *eva
 
 /* Network solution at x, starting from the last one (s->y at s->xy); if Newton
  * fails, step x there in 2, 4, ... moves, each from the previous solution. */
-static void network_at(OsPushpullStage *s, double x, double *y, int *evals)
+static void network_at(OsPushpullCircuit *s, double x, double *y, int *evals)
 {
     memcpy(y, s->y, sizeof(s->y));
     if (*evals > s->budget) {
@@ -212,7 +254,7 @@ static void network_at(OsPushpullStage *s, double x, double *y, int *evals)
 }
 
 typedef struct {
-    OsPushpullStage *s;
+    OsPushpullCircuit *s;
     double c, vin;
     int evals;
 } Outer;
@@ -265,7 +307,7 @@ static void network_sensitivity(const double *jn, double *dy)
     }
 }
 
-static void loop_slopes(const OsPushpullStage *s, const LoopLin *l, double *df, double *dout)
+static void loop_slopes(const OsPushpullCircuit *s, const LoopLin *l, double *df, double *dout)
 {
     double dy[Y_DIM];
     network_sensitivity(l->jn, dy);
@@ -277,7 +319,7 @@ static void loop_slopes(const OsPushpullStage *s, const LoopLin *l, double *df, 
 
 /* Linearise the loop at x, y (the network's residual there in fnet); returns
  * the op-amp's rate f = dx/dt. */
-static double loop_at(OsPushpullStage *s, double x, double vin, const double *y, LoopLin *l,
+static double loop_at(OsPushpullCircuit *s, double x, double vin, const double *y, LoopLin *l,
                       double *fnet)
 {
     network(s, x, y, fnet, l->jn, &l->d);
@@ -290,7 +332,7 @@ static double loop_at(OsPushpullStage *s, double x, double vin, const double *y,
 static double outer_residual(void *ctx, double x, double *dr)
 {
     Outer *o = ctx;
-    OsPushpullStage *s = o->s;
+    OsPushpullCircuit *s = o->s;
     double y[Y_DIM];
     network_at(s, x, y, &o->evals);
     memcpy(s->y, y, sizeof(y)); /* warm start for the next evaluation */
@@ -300,21 +342,21 @@ static double outer_residual(void *ctx, double x, double *dr)
     const double f = loop_at(s, x, o->vin, y, &l, fnet);
     double df, dout;
     loop_slopes(s, &l, &df, &dout);
-    *dr = 1.0 - s->beta * df;
+    *dr = 1.0 - s->w * df;
     if (!(*dr >= 1.0)) {
         *dr = 1.0; /* R' >= 1 by the argument above; guard rounding */
     }
-    return x - o->c - s->beta * f;
+    return x - o->c - s->w * f;
 }
 
-/* Solve one TR-BDF2 stage for x; leaves the network solution in s->y. */
-static double solve_stage(OsPushpullStage *s, double c, double vin, double guess, int *evals)
+/* Solve one TR-BDF2 sub-step for x; leaves the network solution in s->y. */
+static double solve_substep(OsPushpullCircuit *s, double c, double vin, double guess, int *evals)
 {
     const OsOpampCoeffs *op = &s->op;
-    /* Bracket as for the op-amp stage: |x - c| <= beta SR (the input stage is
+    /* Bracket as for the op-amp stage: |x - c| <= w SR (the input stage is
      * bounded by SR and the other terms oppose x), and beyond the swing clamp's
      * factor-3 point R has the sign of x - c. */
-    const double reach = 1.01 * s->beta * op->sr + 1e-6;
+    const double reach = 1.01 * s->w * op->sr + 1e-6;
     const double xc = op->vsw + 1.0986122886681098 / op->inv_w;
     const double lo = fmax(fmin(c, 0.0) - reach, fmin(c, -xc));
     const double hi = fmin(fmax(c, 0.0) + reach, fmax(c, xc));
@@ -332,11 +374,11 @@ static double solve_stage(OsPushpullStage *s, double c, double vin, double guess
 }
 
 /* The fast path: all five unknowns z = (x, y) in one Newton-Raphson system,
- * the op-amp's stage equation R = x - c - beta f beside the network F. It
+ * the op-amp's sub-step equation R = x - c - w f beside the network F. It
  * converges in a few iterations whenever the step is gentle; when it does not
  * (the op-amp slewing across the dead zone within one step, huge overdrive),
  * the step is redone by the nested solution above, which always converges. */
-static void full_system(OsPushpullStage *s, double c, double vin, const double *z, double *f,
+static void full_system(OsPushpullCircuit *s, double c, double vin, const double *z, double *f,
                         double *j, LoopLin *l)
 {
     const double *y = z + 1;
@@ -345,7 +387,7 @@ static void full_system(OsPushpullStage *s, double c, double vin, const double *
     const double *jn = l->jn;
     const Drive d = l->d;
     const OsOpampRate r = l->r;
-    const double b = s->beta;
+    const double b = s->w;
     f[0] = z[PP_X] - c - b * r.f;
     j[0] = 1.0 - b * r.df_dx;
     j[1 + Y_VO] = -b * (r.df_dio * d.d_vo - (s->loop ? 0.0 : r.df_dvd * s->inv_g));
@@ -406,7 +448,7 @@ static int solve_structured(const double *j, double *f)
 #undef J
 }
 
-static int fast_solve(OsPushpullStage *s, double c, double vin, double *z, int *evals, LoopLin *l)
+static int fast_solve(OsPushpullCircuit *s, double c, double vin, double *z, int *evals, LoopLin *l)
 {
     double f[PP_DIM], j[PP_DIM * PP_DIM];
     double last = 0.0; /* the previous unlimited Newton step's largest component */
@@ -450,8 +492,9 @@ static int fast_solve(OsPushpullStage *s, double c, double vin, double *z, int *
     return 0;
 }
 
-void os_pushpull_stage_step(OsPushpullStage *s, double vin, double vin_g, OsStepResult *r)
+static void step(void *c, double vin, double vin_g, OsStepResult *r)
 {
+    OsPushpullCircuit *s = c;
     const double g = OS_TRBDF2_G;
     int evals = 0;
     if (s->fresh) {
@@ -466,12 +509,12 @@ void os_pushpull_stage_step(OsPushpullStage *s, double vin, double vin_g, OsStep
         evals = 0;
     }
     const double x0 = s->z[PP_X];
-    const double c1 = x0 + s->beta * s->fx;
+    const double c1 = x0 + s->w * s->fx;
     double c2, x;
-    /* Fast path: trapezoidal stage to t + g h, BDF2 stage to t + h. */
+    /* Fast path: trapezoidal sub-step to t + g h, BDF2 sub-step to t + h. */
     double z[PP_DIM], zg[PP_DIM];
     memcpy(z, s->z, sizeof(z));
-    z[PP_X] = x0 + 2.0 * s->beta * s->fx;
+    z[PP_X] = x0 + 2.0 * s->w * s->fx;
     LoopLin lin_g, lin;
     int ok = fast_solve(s, c1, vin_g, z, &evals, &lin_g);
     double xg = 0.0, yg[Y_DIM] = {0.0, 0.0, 0.0, 0.0};
@@ -497,16 +540,16 @@ void os_pushpull_stage_step(OsPushpullStage *s, double vin, double vin_g, OsStep
         const int start = evals;
         memcpy(s->y, s->z + 1, sizeof(s->y));
         s->xy = x0;
-        xg = solve_stage(s, c1, vin_g, x0 + 2.0 * s->beta * s->fx, &evals);
+        xg = solve_substep(s, c1, vin_g, x0 + 2.0 * s->w * s->fx, &evals);
         memcpy(yg, s->y, sizeof(yg));
         c2 = OS_TRBDF2_A * xg - OS_TRBDF2_B * x0;
-        x = solve_stage(s, c2, vin, xg + (xg - x0) * ((1.0 - g) / g), &evals);
+        x = solve_substep(s, c2, vin, xg + (xg - x0) * ((1.0 - g) / g), &evals);
         s->starved = evals - start >= (s->starved ? STARVED_BUDGET : STEP_BUDGET);
     }
     if (ok) {
         s->starved = 0;
     }
-    double fx = (x - c2) / s->beta;
+    double fx = (x - c2) / s->w;
     if (fabs(fx) < 1e-30) {
         fx = 0.0;
     }
@@ -532,7 +575,7 @@ void os_pushpull_stage_step(OsPushpullStage *s, double vin, double vin_g, OsStep
     const double pn = n.ic * (s->rail - en) + n.ib * (vo + s->half_bias - en);
     const double pp = p.ic * (ep + s->rail) + p.ib * (ep - (vo - s->half_bias));
     /* The load voltage's slope d(out)/dx dx/dt at the inner point and at the
-     * end (os_window.h), and the loop derivative (os_stage.c's refinement test). */
+     * end (os_window.h), and the loop derivative (os_trajectory.c: the refinement test). */
     double jac, gain;
     if (!ok) {
         /* the nested path: linearise at its solutions (the fast path kept its
@@ -543,7 +586,7 @@ void os_pushpull_stage_step(OsPushpullStage *s, double vin, double vin_g, OsStep
     }
     loop_slopes(s, &lin_g, &jac, &gain);
     r->vmid = yg[Y_OUT];
-    r->dvmid = gain * (xg - c1) / s->beta;
+    r->dvmid = gain * (xg - c1) / s->w;
     loop_slopes(s, &lin, &jac, &gain);
     r->vload = out;
     r->dvload = gain * fx;
@@ -553,3 +596,7 @@ void os_pushpull_stage_step(OsPushpullStage *s, double vin, double vin_g, OsStep
     r->limiting = s->limit > OS_LIMITING_SHARE;
     r->iters = evals;
 }
+
+const OsCircuitOps os_circuit_pushpull = {
+    "pushpull", sizeof(OsPushpullCircuit), 2, update, set_step, reset, step, ok,
+};

@@ -96,6 +96,19 @@ uint32_t os_stage_latency(const OsStage *stage);
  */
 void os_stage_process_probe(OsStage *stage, const float *in, float *out, double *vload, uint32_t n);
 
+/**
+ * Where the load voltage of a stage of @p kind should stop growing, from its
+ * component values @p values (port units, OS_P_COUNT of them indexed by
+ * OsParam; those the stage lacks are not read): the op-amp's swing
+ * (rail - headroom, less one vbe through the follower) or its current limit
+ * times the load (ilimit x (R_L || R1 + R2) for the op-amp stage,
+ * (beta + 1) x ilimit x R_L through the pair), whichever is lower. Returns that
+ * load voltage in V; *current_limited (may be NULL) says which one it is. An
+ * estimate from the circuit's constants for choosing sweep ranges and
+ * describing a design, not a simulation. Real-time safe.
+ */
+double os_stage_expected_limit(OsStageKind kind, const float *values, int *current_limited);
+
 #ifdef __cplusplus
 }
 #endif

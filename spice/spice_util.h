@@ -4,7 +4,7 @@
 /* What every comparison with ngspice needs: netlist templates with @NAME@
  * placeholders, a scratch directory, running ngspice in batch mode, and reading
  * the table that its wrdata command writes. Used by the tests in tests/spice/
- * only; prints its complaints to stderr. */
+ * and the benchmark; prints its complaints to stderr. */
 
 #ifndef OS_SPICE_UTIL_H
 #define OS_SPICE_UTIL_H

@@ -75,6 +75,22 @@ enum {
     OS_PF_LATENCY = 1u << 5      /**< reports latency in frames */
 };
 
+/** How a control input moves when it is changed during processing. */
+typedef enum {
+    OS_SMOOTH_NONE = 0, /**< not a control input */
+    OS_SMOOTH_LINEAR,   /**< ramps linearly in its port unit (for dB ports: in dB) */
+    OS_SMOOTH_LOG,      /**< ramps linearly in the logarithm of its value */
+    OS_SMOOTH_JUMP,     /**< takes the new value at once */
+    OS_SMOOTH_FADE,     /**< a switch whose two outputs are crossfaded (enable, listen) */
+    OS_SMOOTH_RESTART   /**< restarts the signal state (the oversampling factor) */
+} OsSmooth;
+
+/** How a control input's port value becomes the value the circuit uses. */
+typedef enum {
+    OS_SI_SCALE = 0, /**< SI value = port value x si_scale */
+    OS_SI_DB         /**< SI value = 10^(port value / 20), a ratio */
+} OsSiKind;
+
 /** A labelled value of an enumerated or toggled port. */
 typedef struct {
     float value;
@@ -92,6 +108,9 @@ typedef struct {
     int id;              /**< OsParam for control inputs, OsMeter for control outputs, else -1 */
     const OsScalePoint *points; /**< scale points, terminated by a NULL label, or NULL */
     const char *comment;        /**< one sentence for users (rdfs:comment) */
+    OsSmooth smooth;            /**< control inputs: how a change is applied */
+    OsSiKind si;                /**< control inputs: conversion to the circuit's unit */
+    double si_scale;            /**< with OS_SI_SCALE: SI units per port unit (mA: 1e-3) */
 } OsPortInfo;
 
 /** Whether @p kind is implemented in this build of the library. Real-time safe. */

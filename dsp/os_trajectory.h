@@ -1,0 +1,61 @@
+/* Copyright 2026 outstage developers */
+/* SPDX-License-Identifier: ISC */
+
+/**
+ * @file os_trajectory.h
+ * The circuit's trajectory between two oversampled samples: the input within
+ * the step (interpolated from the oversampled input), the steps taken again
+ * where the op-amp changes regime, and the band-limited sampling of the load
+ * voltage along it (os_window.h). Internal to the DSP library.
+ */
+
+#ifndef OS_TRAJECTORY_H
+#define OS_TRAJECTORY_H
+
+#include "os_circuit.h"
+#include "os_window.h"
+
+#ifdef __cplusplus
+extern "C" {
+#endif
+
+/** Deepest level of halving any circuit asks for (OsCircuitOps.refine_depth). */
+#define OS_TRAJECTORY_MAX_DEPTH 2
+
+/** The trajectory of one circuit. */
+typedef struct {
+    const OsCircuitOps *ops;
+    void *circuit; /**< the live state (owned by the stage) */
+    /** saved states, one per level of halving (owned by the stage,
+     *  (OS_TRAJECTORY_MAX_DEPTH + 1) x ops->size bytes) */
+    unsigned char *saved;
+    double hist[3]; /**< the last three oversampled inputs, oldest first */
+    OsWindow win;
+    double last_jac; /**< the circuit's regime at the last step's end */
+    int factor;      /**< oversampling factor */
+    double h;        /**< oversampled step, s */
+} OsTrajectory;
+
+/** Bind @p t to a circuit's operations, its live state and the scratch space
+ *  for saved states. Real-time safe. */
+void os_trajectory_init(OsTrajectory *t, const OsCircuitOps *ops, void *circuit,
+                        unsigned char *saved);
+
+/** Clear the signal state (input history, window, the circuit) for
+ *  oversampling @p factor at host rate @p rate (Hz). Real-time safe. */
+void os_trajectory_reset(OsTrajectory *t, int factor, double rate);
+
+/** Delay of the band-limited sampling, oversampled steps. */
+int os_trajectory_delay(int factor);
+
+/** One oversampled step to input @p vin (V): the circuit's result at the
+ *  step's end in *r (meters), and the load voltage sample the decimator takes
+ *  (band-limited, OS_WINDOW_DELAY steps late, from 2x up; the plain sample at
+ *  1x). Real-time safe. */
+double os_trajectory_step(OsTrajectory *t, double vin, OsStepResult *r);
+
+#ifdef __cplusplus
+}
+#endif
+
+#endif /* OS_TRAJECTORY_H */
