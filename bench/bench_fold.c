@@ -43,7 +43,7 @@ static int reference_record(const AlTone *t, uint64_t ref, double *rec, size_t n
         return -1;
     }
     const double h = 1.0 / (double)ref;
-    ops->update(c, si, h);
+    ops->update(c, si, h, OS_UPDATE_RESET);
     ops->reset(c);
     const size_t settle = (size_t)(ref / 50u);
     const double amp = t->amp * vpf;

@@ -41,17 +41,30 @@ typedef struct {
     int iters;    /**< Newton evaluations used */
 } OsStepResult;
 
-/** One circuit's operations. The state is a plain struct of @c size bytes
- *  without pointers, so that a copy of it (memcpy) is a saved state. */
+/** Why a circuit's parameters are being set. */
+typedef enum {
+    OS_UPDATE_RESET = 0, /**< the signal state restarts: everything takes effect now */
+    OS_UPDATE_JUMP,      /**< a control jumped: take effect now */
+    OS_UPDATE_RAMP       /**< controls glide: called every frame while they do, so
+                          *  costly derived data (maps) may follow with a delay */
+} OsUpdate;
+
+/** One circuit's operations. A circuit is a plain struct of @c size bytes
+ *  without pointers (coefficients, maps and its state); its signal state, what
+ *  a step changes, can be saved to and restored from @c state_size bytes. */
 typedef struct {
-    const char *name; /**< for messages and the benchmark */
-    size_t size;      /**< bytes of the circuit's state */
+    const char *name;  /**< for messages and the benchmark */
+    size_t size;       /**< bytes of the circuit */
+    size_t state_size; /**< bytes of its saved signal state */
     /** Levels of halving a step in which the op-amp changes regime
      *  (os_trajectory.c). */
     int refine_depth;
     /** Coefficients from the parameters @p si (SI units, indexed by OsParam)
      *  for steps of @p h s; the state is kept. Real-time safe. */
-    void (*update)(void *c, const double *si, double h);
+    void (*update)(void *c, const double *si, double h, OsUpdate how);
+    /** Once per host frame, before its steps: bounded upkeep of derived data
+     *  (a map being built, a blend between two). May be NULL. Real-time safe. */
+    void (*frame)(void *c);
     /** Change the step to @p h (s), keeping the state. Real-time safe. */
     void (*set_step)(void *c, double h);
     /** Clear the state. Real-time safe. */
@@ -61,6 +74,10 @@ typedef struct {
     void (*step)(void *c, double vin, double vin_g, OsStepResult *r);
     /** Whether the state is finite. Real-time safe. */
     int (*ok)(const void *c);
+    /** Copy the signal state to @p state (state_size bytes). Real-time safe. */
+    void (*save)(const void *c, void *state);
+    /** Take the signal state back from @p state. Real-time safe. */
+    void (*restore)(void *c, const void *state);
 } OsCircuitOps;
 
 /** The circuit behind stages of @p kind, or NULL. */

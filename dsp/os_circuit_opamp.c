@@ -27,10 +27,9 @@ typedef struct {
     double kx;  /* output current per volt of x: 1 / (R_load||R_fb + Rs) */
     double rho; /* output voltage per volt of x: (R_load||R_fb) / (R_load||R_fb + Rs) */
     double w;   /* TR-BDF2 sub-step weight g h / 2, s */
-    /* state at the last step */
-    double x;   /* internal node, V */
-    double fx;  /* dx/dt there, V/s */
-    double vin; /* input voltage there, V */
+    /* signal state at the last step: internal node (V), dx/dt there (V/s),
+     * input voltage there (V) */
+    double x, fx, vin;
     /* context of the residual during a solve */
     double c, vin_now, limit;
     double jac; /* loop derivative at the last evaluation, 1/s */
@@ -46,9 +45,10 @@ static inline double max2(double a, double b)
     return a > b ? a : b;
 }
 
-static void update(void *c, const double *si, double h)
+static void update(void *c, const double *si, double h, OsUpdate how)
 {
     OsOpampCircuit *s = c;
+    (void)how;
     os_opamp_coeffs_from(si, &s->op);
     const double load = si[OS_P_LOAD];
     const double rp = load * OS_FEEDBACK_TOTAL / (load + OS_FEEDBACK_TOTAL);
@@ -156,6 +156,35 @@ static void step(void *c, double vin, double vin_g, OsStepResult *r)
     r->iters = iters;
 }
 
+static void save(const void *c, void *state)
+{
+    const OsOpampCircuit *s = c;
+    double *d = state;
+    d[0] = s->x;
+    d[1] = s->fx;
+    d[2] = s->vin;
+}
+
+static void restore(void *c, const void *state)
+{
+    OsOpampCircuit *s = c;
+    const double *d = state;
+    s->x = d[0];
+    s->fx = d[1];
+    s->vin = d[2];
+}
+
 const OsCircuitOps os_circuit_opamp = {
-    "opamp", sizeof(OsOpampCircuit), 1, update, set_step, reset, step, ok,
+    "opamp",
+    sizeof(OsOpampCircuit),
+    3 * sizeof(double),
+    1,
+    update,
+    NULL,
+    set_step,
+    reset,
+    step,
+    ok,
+    save,
+    restore,
 };

@@ -75,14 +75,14 @@ const char *os_strerror(OsStatus status)
 
 /* The level conventions and the circuit's coefficients from the present
  * parameters. */
-static void derive(OsStage *s)
+static void derive(OsStage *s, OsUpdate how)
 {
     const double *si = s->par.si;
     s->fullscale = si[OS_P_FULLSCALE];
     s->drive_lin = si[OS_P_DRIVE];
     s->trim_lin = si[OS_P_TRIM];
     s->gain_lin = si[OS_P_GAIN];
-    s->ops->update(s->circuit, si, 1.0 / (s->rate * s->os.factor));
+    s->ops->update(s->circuit, si, 1.0 / (s->rate * s->os.factor), how);
 }
 
 static void clear_signal_state(OsStage *s)
@@ -132,7 +132,7 @@ OsStage *os_stage_new(OsStageKind kind, double sample_rate, OsStatus *status)
         s->dry_len = (uint32_t)maxlat + 1;
         s->dry = calloc(s->dry_len, sizeof(float));
         s->circuit = calloc(1, ops->size);
-        s->saved = calloc(OS_TRAJECTORY_MAX_DEPTH + 1, ops->size);
+        s->saved = calloc(OS_TRAJECTORY_MAX_DEPTH + 1, ops->state_size);
         if (s->dry == NULL || s->circuit == NULL || s->saved == NULL) {
             st = OS_ERR_NO_MEMORY;
         }
@@ -178,7 +178,7 @@ void os_stage_reset(OsStage *s)
     os_params_jump(&s->par);
     s->os.factor = os_params_factor(s->par.target[OS_P_OVERSAMPLE]);
     clear_signal_state(s);
-    derive(s);
+    derive(s, OS_UPDATE_RESET);
     s->mix = s->mix_tgt = s->par.target[OS_P_ENABLE] >= 0.5f ? 1.0 : 0.0;
     s->listen = s->listen_tgt = s->par.target[OS_P_LISTEN] >= 0.5f ? 1.0 : 0.0;
     memset(&s->meters, 0, sizeof(s->meters));
@@ -207,10 +207,10 @@ OsStatus os_stage_set(OsStage *s, OsParam param, float value)
          * gap of one latency) and the reported latency changes. */
         s->os.factor = (int)s->par.target[param];
         clear_signal_state(s);
-        derive(s);
+        derive(s, OS_UPDATE_JUMP);
         break;
     case OS_PARAM_JUMPED:
-        derive(s);
+        derive(s, OS_UPDATE_JUMP);
         break;
     }
     return OS_OK;
@@ -274,7 +274,10 @@ static void process(OsStage *s, const float *in, float *out, double *vload, uint
     for (uint32_t i = 0; i < n; ++i) {
         if (s->par.ramping) {
             os_params_advance(&s->par);
-            derive(s);
+            derive(s, OS_UPDATE_RAMP);
+        }
+        if (s->ops->frame) {
+            s->ops->frame(s->circuit);
         }
         float smp = in[i];
         if (!isfinite(smp)) {

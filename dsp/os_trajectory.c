@@ -87,7 +87,7 @@ static void window_add(OsTrajectory *t, double u0, double du, const OsStepResult
 
 static unsigned char *saved_at(const OsTrajectory *t, int depth)
 {
-    return t->saved + (size_t)depth * t->ops->size;
+    return t->saved + (size_t)depth * t->ops->state_size;
 }
 
 /* Levels of halving (OsCircuitOps.refine_depth): a halved piece across which
@@ -110,14 +110,14 @@ static void refine(OsTrajectory *t, double vin, double u0, double du, double jac
         window_add(t, u0, du, r);
         return;
     }
-    memcpy(t->circuit, saved_at(t, depth), ops->size);
+    ops->restore(t->circuit, saved_at(t, depth));
     int iters = r->iters;
     const double g = OS_TRBDF2_G, hd = 0.5 * du;
     for (int half = 0; half < 2; ++half) {
         const double a = u0 + half * hd;
         if (depth + 1 < ops->refine_depth) {
             /* the state at the half's start, in case it is halved again */
-            memcpy(saved_at(t, depth + 1), t->circuit, ops->size);
+            ops->save(t->circuit, saved_at(t, depth + 1));
         }
         const double j0 = half == 0 ? jac0 : t->last_jac;
         ops->set_step(t->circuit, hd * t->h);
@@ -138,7 +138,7 @@ double os_trajectory_step(OsTrajectory *t, double vin, OsStepResult *r)
     double y;
     if (windowed) {
         /* kept in case the step has to be taken again in halves */
-        memcpy(saved_at(t, 0), t->circuit, ops->size);
+        ops->save(t->circuit, saved_at(t, 0));
         ops->step(t->circuit, vin, input_at(t->hist, vin, OS_TRBDF2_G), r);
         const double jac0 = t->last_jac;
         refine(t, vin, 0.0, 1.0, jac0, 0, r);

@@ -27,7 +27,7 @@ typedef struct {
     const OsCircuitOps *ops;
     void *circuit; /**< the live state (owned by the stage) */
     /** saved states, one per level of halving (owned by the stage,
-     *  (OS_TRAJECTORY_MAX_DEPTH + 1) x ops->size bytes) */
+     *  (OS_TRAJECTORY_MAX_DEPTH + 1) x ops->state_size bytes) */
     unsigned char *saved;
     double hist[3]; /**< the last three oversampled inputs, oldest first */
     OsWindow win;
