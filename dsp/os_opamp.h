@@ -120,9 +120,9 @@ static inline double os_exp_lim(double u, double *d)
 static inline void os_opamp_rate(const OsOpampCoeffs *c, double x, double vd, double io,
                                  OsOpampRate *r)
 {
-    /* tanh(u) = 1 - 2 / (1 + e^(2u)): one exp instead of the library's tanh;
-     * absolute error about 1e-16, saturating cleanly to +-1 for large |u|. */
-    const double t = 1.0 - 2.0 / (1.0 + os_exp(2.0 * c->kin * vd));
+    /* one exp instead of the library's tanh (os_fastmath.h) */
+    double dt;
+    const double t = os_tanh_d(c->kin * vd, &dt);
     double dp, dn;
 
     /* Current limiter: diverted drive on each polarity. */
@@ -134,7 +134,7 @@ static inline void os_opamp_rate(const OsOpampCoeffs *c, double x, double vd, do
     const double cn = os_exp_lim((-x - c->vsw) * c->inv_w, &sn);
 
     r->f = c->sr * (t - (lp - ln) - (cp - cn)) - c->wp * x;
-    r->df_dvd = c->sr * c->kin * (1.0 - t * t);
+    r->df_dvd = c->sr * c->kin * dt;
     r->df_dio = -c->sr * c->inv_ik * (dp + dn);
     r->df_dx = -c->sr * c->inv_w * (sp + sn) - c->wp;
     r->limit = lp > ln ? lp : ln;
