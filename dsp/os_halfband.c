@@ -102,16 +102,35 @@ void os_halfband_reset(OsHalfbandState *st, const OsHalfband *hb)
     st->hb = hb;
 }
 
-/* Symmetric FIR over the newest 2K samples of the doubled history: the newest
- * sample is at w[0], pairs (i, 2K-1-i) share a tap. */
+/* The non-trivial branch over the newest 2K samples of the doubled history
+ * (newest at w[0]): the full dot product with the symmetric taps, in two-lane
+ * vectors with two accumulators (GCC/Clang vector extensions, lowered to
+ * scalar code where the target has no SIMD), 2K being even. The summation
+ * order is fixed, so the result is deterministic. */
+typedef double OsV2 __attribute__((vector_size(16)));
+
 static inline double branch(const OsHalfband *hb, const double *w)
 {
     const int len = 2 * hb->k;
-    double s = 0.0;
-    for (int i = 0; i < hb->k; ++i) {
-        s += hb->even[i] * (w[i] + w[len - 1 - i]);
+    OsV2 a0 = {0.0, 0.0}, a1 = {0.0, 0.0};
+    int i = 0;
+    for (; i + 4 <= len; i += 4) {
+        OsV2 t0, t1, x0, x1;
+        memcpy(&t0, hb->even + i, sizeof(t0));
+        memcpy(&t1, hb->even + i + 2, sizeof(t1));
+        memcpy(&x0, w + i, sizeof(x0));
+        memcpy(&x1, w + i + 2, sizeof(x1));
+        a0 += t0 * x0;
+        a1 += t1 * x1;
     }
-    return s;
+    for (; i < len; i += 2) {
+        OsV2 t0, x0;
+        memcpy(&t0, hb->even + i, sizeof(t0));
+        memcpy(&x0, w + i, sizeof(x0));
+        a0 += t0 * x0;
+    }
+    a0 += a1;
+    return a0[0] + a0[1];
 }
 
 /* Push x into a history of length len stored twice, so that the newest len
