@@ -24,6 +24,29 @@
 extern "C" {
 #endif
 
+/** Most regime indicators a circuit reports. */
+#define OS_MAX_INDICATORS 4
+
+/** A regime indicator: a dimensionless, continuous function of the circuit's
+ *  state and input whose value tells which regime one of its nonlinearities is
+ *  in (the op-amp's input pair linear or slewing, a transistor off or
+ *  conducting). Its range is cut into three zones at @c lo and @c hi; in the
+ *  middle one the nonlinearity bends. A step during which an indicator
+ *  changes zone is split at the crossing (os_trajectory.c), found to within
+ *  @c tol of the boundary; within the middle zone the pieces are kept short
+ *  enough that the indicator moves by at most
+ *  span x exp(sharp x max(|value - centre| - 1, 0) / 3) across one: the
+ *  solver's local error grows with the cube of a piece and with the
+ *  nonlinearity's third derivative, which for tanh(u) or exp(u) falls off as
+ *  exp(-2|u|) or exp(-|u|) away from the bend, so pieces may grow as the cube
+ *  root of that. */
+typedef struct {
+    double lo, hi, tol;
+    double span;   /**< largest change across a piece at the bend; 0: no limit */
+    double centre; /**< where the nonlinearity bends sharpest */
+    double sharp;  /**< how fast its third derivative falls away from there (e-folds per unit) */
+} OsIndicator;
+
 /** What one step reports, for the band-limited sampling and the meters. */
 typedef struct {
     double vload;       /**< load voltage at the step's end, V */
@@ -37,8 +60,15 @@ typedef struct {
      *  loop, 1/s, a smooth function of the state that jumps when the current
      *  limiter, the slew limit, a clamp or the follower change regime. */
     double jac;
-    int limiting; /**< 1 while the op-amp current limiter is engaged */
-    int iters;    /**< Newton evaluations used */
+    int limiting;                  /**< 1 while the op-amp current limiter is engaged */
+    int iters;                     /**< Newton evaluations used */
+    double ind[OS_MAX_INDICATORS]; /**< the regime indicators at the step's end */
+    /** how much each indicator's nonlinearity matters at the step's end, 0..1:
+     *  the op-amp's input pair matters little while its limiter holds the
+     *  output; pieces are only kept short and crossings only located where it
+     *  does */
+    double ind_weight[OS_MAX_INDICATORS];
+    double ind_mid[OS_MAX_INDICATORS]; /**< and at its inner point */
 } OsStepResult;
 
 /** Why a circuit's parameters are being set. */
@@ -56,9 +86,11 @@ typedef struct {
     const char *name;  /**< for messages and the benchmark */
     size_t size;       /**< bytes of the circuit */
     size_t state_size; /**< bytes of its saved signal state */
-    /** Levels of halving a step in which the op-amp changes regime
-     *  (os_trajectory.c). */
+    /** Levels of halving a step in which the op-amp's loop derivative
+     *  changes (os_trajectory.c). */
     int refine_depth;
+    int n_indicators;              /**< regime indicators the steps report */
+    const OsIndicator *indicators; /**< their zones */
     /** Coefficients from the parameters @p si (SI units, indexed by OsParam)
      *  for steps of @p h s; the state is kept. Real-time safe. */
     void (*update)(void *c, const double *si, double h, OsUpdate how);

@@ -30,9 +30,16 @@ typedef struct {
     /* signal state at the last step: internal node (V), dx/dt there (V/s),
      * input voltage there (V) */
     double x, fx, vin;
-    /* context of the residual during a solve */
-    double c, vin_now, limit;
-    double jac; /* loop derivative at the last evaluation, 1/s */
+    /* the last evaluation: where (x, v), the rate, its slopes by x and by v,
+     * the limiter's share and whether it is valid; the next solve starts from
+     * this linearisation */
+    double ex, ev, ef, efx, efv, limit;
+    int cached;
+    double jac;        /* loop derivative at the last evaluation, 1/s */
+    double fb;         /* share of x fed back: rho / G */
+    double lim_near;   /* |io| above which the limiter's term is not negligible, A */
+    double clamp_near; /* |x| above which the swing clamp's term is not negligible, V */
+    double accept;     /* a Halley step this short leaves an error below the tolerance, V */
 } OsOpampCircuit;
 
 static inline double min2(double a, double b)
@@ -57,6 +64,20 @@ static void update(void *c, const double *si, double h, OsUpdate how)
     s->kx = 1.0 / (rp + s->op.rs);
     s->rho = rp * s->kx;
     s->w = os_trbdf2_weight(h);
+    s->fb = s->rho * s->inv_g;
+    /* The clamp terms are exp(u) with u below OS_EXP_NEGLIGIBLE (os_opamp.h)
+     * short of these: there they are exactly zero and not evaluated. */
+    s->lim_near = s->op.ilim + OS_EXP_NEGLIGIBLE / s->op.inv_ik;
+    s->clamp_near = s->op.vsw + OS_EXP_NEGLIGIBLE / s->op.inv_w;
+    /* A third-order step leaves an error of about K e^3 after a step e, K the
+     * largest ratio of the residual's third to first derivative: the input
+     * pair's (kin fb)^2, the clamps' (1/w)^2 and (kx / Ik)^2. A step below
+     * cbrt(tol / K) lands within the tolerance (tol = 1e-8 V, a tenth of
+     * the Newton tolerance the circuit was validated with). */
+    const double a = s->op.kin * s->fb, b = s->op.inv_w, l = s->kx * s->op.inv_ik;
+    const double k = fmax(a * a, fmax(b * b, l * l));
+    s->accept = fmin(1e-4, cbrt(1e-8 / k));
+    s->cached = 0;
 }
 
 static void set_step(void *c, double h)
@@ -73,6 +94,7 @@ static void reset(void *c)
     s->vin = 0.0;
     s->limit = 0.0;
     s->jac = 0.0;
+    s->cached = 0;
 }
 
 static int ok(const void *c)
@@ -81,45 +103,147 @@ static int ok(const void *c)
     return isfinite(s->x) && isfinite(s->fx) && isfinite(s->vin);
 }
 
-static double residual(void *ctx, double x, double *d)
+/* E(u) = exp(u) continued linearly above OS_EXP_MAX (os_opamp.h), with its
+ * first and second derivatives. */
+static inline double exp_cont(double u, double *d1, double *d2)
 {
-    OsOpampCircuit *s = ctx;
-    const double fb = s->rho * s->inv_g;
-    OsOpampRate r;
-    os_opamp_rate(&s->op, x, s->vin_now - fb * x, s->kx * x, &r);
-    s->limit = r.limit;
-    s->jac = r.df_dx - r.df_dvd * fb + r.df_dio * s->kx;
-    *d = 1.0 - s->w * s->jac;
-    return x - s->c - s->w * r.f;
+    if (u > OS_EXP_MAX) {
+        const double e = os_exp(OS_EXP_MAX);
+        *d1 = e;
+        *d2 = 0.0;
+        return e * (1.0 + (u - OS_EXP_MAX));
+    }
+    const double e = os_exp(u);
+    *d1 = e;
+    *d2 = e;
+    return e;
 }
 
-/* Solve x = c + w f(x) at input voltage vin; returns x, adds iterations. */
+/* The op-amp's rate f = dx/dt at internal node x and input v (os_opamp.h,
+ * with vd = v - fb x and io = kx x), its first and second derivatives by x
+ * (*d1, *d2) and by v (*dv). The limiter's and the clamp's terms are
+ * evaluated only where they are not exactly zero. */
+static inline double rate_at(OsOpampCircuit *s, double x, double v, double *d1, double *d2,
+                             double *dv)
+{
+    const OsOpampCoeffs *op = &s->op;
+    const double a = op->kin * s->fb;
+    const double u = op->kin * (v - s->fb * x);
+    double dt;
+    const double t = os_tanh_d(u, &dt);
+    double f = op->sr * t - op->wp * x;
+    double g1 = -op->sr * a * dt - op->wp;
+    double g2 = -2.0 * op->sr * a * a * t * dt; /* d2 tanh/du2 = -2 t (1 - t^2) */
+    *dv = op->sr * op->kin * dt;
+    double limit = 0.0;
+    const double io = s->kx * x;
+    if (fabs(io) > s->lim_near) {
+        /* only the polarity that |io| is near: the other's term is exactly 0
+         * (|io| > lim_near > 0 puts it below OS_EXP_NEGLIGIBLE) */
+        const double sg = io > 0.0 ? 1.0 : -1.0, k = s->kx * op->inv_ik;
+        double d1e, d2e;
+        const double e = exp_cont((sg * io - op->ilim) * op->inv_ik, &d1e, &d2e);
+        f -= op->sr * sg * e;
+        g1 -= op->sr * k * d1e;
+        g2 -= op->sr * k * k * sg * d2e;
+        limit = e;
+    }
+    if (fabs(x) > s->clamp_near) {
+        const double sg = x > 0.0 ? 1.0 : -1.0;
+        double d1e, d2e;
+        const double e = exp_cont((sg * x - op->vsw) * op->inv_w, &d1e, &d2e);
+        f -= op->sr * sg * e;
+        g1 -= op->sr * op->inv_w * d1e;
+        g2 -= op->sr * op->inv_w * op->inv_w * sg * d2e;
+        const double other = (-sg * x - op->vsw) * op->inv_w;
+        if (other > OS_EXP_NEGLIGIBLE) {
+            /* a swing so small (under 20 knee widths) that both clamps act */
+            const double e2 = exp_cont(other, &d1e, &d2e);
+            f += op->sr * sg * e2;
+            g1 -= op->sr * op->inv_w * d1e;
+            g2 += op->sr * op->inv_w * op->inv_w * sg * d2e;
+        }
+    }
+    s->limit = limit;
+    *d1 = g1;
+    *d2 = g2;
+    return f;
+}
+
+/* Solve one sub-step x = c + w f(x) at input voltage vin; returns x, adds
+ * evaluations. R(x) = x - c - w f(x) rises strictly (R' >= 1), so Chebyshev's
+ * iteration (Newton's with the second derivative, cubic convergence), kept
+ * inside a bracket that shrinks with every evaluation and falling back to
+ * bisection when a step leaves it, converges from any start. It starts from
+ * the linearisation of the last evaluation (one Newton step for the new c and
+ * vin from there, with no new evaluation), or, with none, from the loop's
+ * linear solution. */
 static double solve(OsOpampCircuit *s, double c, double vin, double guess, int *iters)
 {
     const OsOpampCoeffs *op = &s->op;
-    const double fb = s->rho * s->inv_g;
-    s->c = c;
-    s->vin_now = vin;
+    const double w = s->w;
     /* Bracket. The input stage is bounded by SR and every other term of f opposes
      * x, so |x - c| <= w SR. Beyond xc, where one clamp has reached 3 (in
      * units of SR), f < 0 for x > 0 (and f > 0 for x < 0): there R has the sign of
-     * x - c. Both bounds keep Newton out of the far exponential tails, where it
-     * could only creep back one knee width per iteration. */
-    const double reach = 1.01 * s->w * op->sr + 1e-6;
+     * x - c. Both bounds keep the iteration out of the far exponential tails,
+     * where it could only creep back one knee width per step. */
+    const double reach = 1.01 * w * op->sr + 1e-6;
     const double ln3 = 1.0986122886681098;
     const double xc = min2(op->vsw + ln3 / op->inv_w, (op->ilim + ln3 / op->inv_ik) / s->kx);
-    const double lo = max2(min2(c, 0.0) - reach, min2(c, -xc));
-    const double hi = min2(max2(c, 0.0) + reach, max2(c, xc));
-    /* Guess: the solution with the input stage and clamps linear, exact to first
-     * order whenever the op-amp is neither slewing nor limiting; at long steps
-     * (low rates) far better than extrapolating. */
-    const double wt = op->sr * op->kin;
-    const double x_lin = (c + s->w * wt * vin) / (1.0 + s->w * (wt * fb + op->wp));
-    if (fabs(op->kin * (vin - fb * x_lin)) < 0.5) {
-        guess = x_lin;
+    double lo = max2(min2(c, 0.0) - reach, min2(c, -xc));
+    double hi = min2(max2(c, 0.0) + reach, max2(c, xc));
+    double x;
+    if (s->cached) {
+        x = (c + w * (s->ef - s->efx * s->ex + s->efv * (vin - s->ev))) / (1.0 - w * s->efx);
+    } else {
+        const double wt = op->sr * op->kin;
+        x = (c + w * wt * vin) / (1.0 + w * (wt * s->fb + op->wp));
+        if (!(fabs(op->kin * (vin - s->fb * x)) < 0.5)) {
+            x = guess;
+        }
+    }
+    if (!(x > lo && x < hi)) {
+        x = isfinite(x) ? (x <= lo ? lo : hi) : 0.5 * (lo + hi);
     }
     int it = 0;
-    const double x = os_newton_scalar(residual, s, guess, lo, hi, 1e-7, 60, &it);
+    while (it < 60) {
+        double d1, d2, dv;
+        const double f = rate_at(s, x, vin, &d1, &d2, &dv);
+        ++it;
+        s->ex = x;
+        s->ev = vin;
+        s->ef = f;
+        s->efx = d1;
+        s->efv = dv;
+        s->jac = d1;
+        const double r = x - c - w * f;
+        if (r == 0.0) {
+            break;
+        }
+        if (r > 0.0) {
+            hi = x;
+        } else {
+            lo = x;
+        }
+        const double inv_r1 = 1.0 / (1.0 - w * d1), r2 = -w * d2;
+        const double newton = r * inv_r1, bend = 0.5 * newton * r2 * inv_r1;
+        /* Chebyshev's third-order step, Newton's corrected by the curvature
+         * (cubic convergence, like Halley's, without a second division);
+         * Newton's alone where the correction would be large */
+        const double step = fabs(bend) < 0.5 ? newton * (1.0 + bend) : newton;
+        double xn = x - step;
+        if (!(xn > lo && xn < hi)) {
+            xn = 0.5 * (lo + hi); /* left the bracket: bisect */
+        } else if (fabs(step) <= s->accept) {
+            x = xn;
+            break;
+        }
+        x = xn;
+        if (hi - lo <= 1e-12 * (1.0 + fabs(x))) {
+            break;
+        }
+    }
+    s->cached = 1;
     *iters += it;
     return x;
 }
@@ -137,6 +261,8 @@ static void step(void *c, double vin, double vin_g, OsStepResult *r)
     double fx = (x - c2) / s->w;
     r->vmid = s->rho * xg;
     r->dvmid = s->rho * (xg - c1) / s->w;
+    const double fb = s->fb;
+    r->ind_mid[0] = os_opamp_indicator(&s->op, vin_g - fb * xg);
     if (fabs(x) < 1e-30) {
         x = 0.0; /* keep subnormals out of the state */
     }
@@ -154,6 +280,8 @@ static void step(void *c, double vin, double vin_g, OsStepResult *r)
     r->dissipation = 0.0;
     r->limiting = s->limit > OS_LIMITING_SHARE;
     r->iters = iters;
+    r->ind[0] = os_opamp_indicator(&s->op, vin - fb * x);
+    r->ind_weight[0] = s->limit < 1.0 ? 1.0 - s->limit : 0.0;
 }
 
 static void save(const void *c, void *state)
@@ -175,16 +303,18 @@ static void restore(void *c, const void *state)
 }
 
 const OsCircuitOps os_circuit_opamp = {
-    "opamp",
-    sizeof(OsOpampCircuit),
-    3 * sizeof(double),
-    1,
-    update,
-    NULL,
-    set_step,
-    reset,
-    step,
-    ok,
-    save,
-    restore,
+    .name = "opamp",
+    .size = sizeof(OsOpampCircuit),
+    .state_size = 3 * sizeof(double),
+    .refine_depth = 1,
+    .n_indicators = OS_OPAMP_INDICATORS,
+    .indicators = os_opamp_zones,
+    .update = update,
+    .frame = NULL,
+    .set_step = set_step,
+    .reset = reset,
+    .step = step,
+    .ok = ok,
+    .save = save,
+    .restore = restore,
 };

@@ -21,3 +21,11 @@ void os_opamp_coeffs_from(const double *si, OsOpampCoeffs *c)
      * every VT across Rs (Ebers-Moll forward-active approximation). */
     c->inv_ik = c->rs / OS_VT;
 }
+
+/* Where the op-amp's input pair bends (os_opamp_indicator(), os_circuit.h):
+ * tanh(u) differs from +-1 by 2 exp(-2|u|), under 2e-7 beyond |u| = 8, so
+ * outside that zone the pair is saturated to within the solver's tolerance;
+ * its third derivative falls as exp(-2|u|) away from the origin. */
+const OsIndicator os_opamp_zones[OS_OPAMP_INDICATORS] = {
+    {-8.0, 8.0, 0.1, 1.0, 0.0, 2.0},
+};

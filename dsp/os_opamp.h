@@ -36,6 +36,9 @@
 #ifndef OS_OPAMP_H
 #define OS_OPAMP_H
 
+#include <math.h>
+
+#include "os_circuit.h"
 #include "os_fastmath.h"
 #include "os_ports.h"
 
@@ -139,6 +142,19 @@ static inline void os_opamp_rate(const OsOpampCoeffs *c, double x, double vd, do
     r->df_dx = -c->sr * c->inv_w * (sp + sn) - c->wp;
     r->limit = lp > ln ? lp : ln;
 }
+
+/** The op-amp's regime indicator (os_circuit.h): the input pair's argument
+ *  kin vd, near 0 while the loop tracks, beyond a few units while the op-amp
+ *  slews. Its limiter and swing clamp bend the loop derivative, which the
+ *  trajectory's halving test watches instead. Real-time safe. */
+static inline double os_opamp_indicator(const OsOpampCoeffs *c, double vd)
+{
+    return c->kin * vd;
+}
+
+/** Number of op-amp indicators, and their zones. */
+#define OS_OPAMP_INDICATORS 1
+extern const OsIndicator os_opamp_zones[OS_OPAMP_INDICATORS];
 
 #ifdef __cplusplus
 }

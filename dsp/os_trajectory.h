@@ -4,9 +4,11 @@
 /**
  * @file os_trajectory.h
  * The circuit's trajectory between two oversampled samples: the input within
- * the step (interpolated from the oversampled input), the steps taken again
- * where the op-amp changes regime, and the band-limited sampling of the load
- * voltage along it (os_window.h). Internal to the DSP library.
+ * the step (interpolated from the oversampled input), the step cut into pieces
+ * where a regime indicator of the circuit changes zone (os_circuit.h) and
+ * pieces taken again in halves where the op-amp still changes regime, and the
+ * band-limited sampling of the load voltage along it (os_window.h). Internal
+ * to the DSP library.
  */
 
 #ifndef OS_TRAJECTORY_H
@@ -19,6 +21,14 @@
 extern "C" {
 #endif
 
+#ifndef OS_INPUT_POINTS
+/** Points of the interpolation of the input within a step (os_trajectory.c). */
+#define OS_INPUT_POINTS 6
+#endif
+
+/** Shares of a step whose input weights are kept. */
+#define OS_TRAJECTORY_FIXED 9
+
 /** Deepest level of halving any circuit asks for (OsCircuitOps.refine_depth). */
 #define OS_TRAJECTORY_MAX_DEPTH 2
 
@@ -29,11 +39,23 @@ typedef struct {
     /** saved states, one per level of halving (owned by the stage,
      *  (OS_TRAJECTORY_MAX_DEPTH + 1) x ops->state_size bytes) */
     unsigned char *saved;
-    double hist[3]; /**< the last three oversampled inputs, oldest first */
+    double hist[OS_INPUT_POINTS - 1]; /**< the last oversampled inputs, oldest first */
+    double inner[OS_INPUT_POINTS];    /**< the input's weights at the TR-BDF2 inner point */
+    /** the input's weights at the points halved steps use, and where they are */
+    double fixed[OS_TRAJECTORY_FIXED][OS_INPUT_POINTS];
+    double fixed_at[OS_TRAJECTORY_FIXED];
     OsWindow win;
     double last_jac; /**< the circuit's regime at the last step's end */
     int factor;      /**< oversampling factor */
     double h;        /**< oversampled step, s */
+    /** the regime indicators at the last step's end, and their zones */
+    double ind[OS_MAX_INDICATORS];
+    int zone[OS_MAX_INDICATORS];
+    double rate[OS_MAX_INDICATORS];   /**< their change per step on the last piece */
+    double weight[OS_MAX_INDICATORS]; /**< and how much they mattered there */
+    int fresh;                        /**< no step since reset: the zones are not known yet */
+    double credit; /**< sub-steps the refinement may still spend (os_trajectory.c) */
+    int events;    /**< steps split at a regime change since reset (for tests) */
 } OsTrajectory;
 
 /** Bind @p t to a circuit's operations, its live state and the scratch space

@@ -21,15 +21,19 @@
  * at the step's start, at the TR-BDF2 inner point t + g h and at its end (the
  * circuit reports all three: os_circuit.h), so a corner the solver meets
  * inside a step shapes the window's integral; steps in which the op-amp
- * changes its regime are taken again as two halves (os_stage.c). A three-tap
+ * changes its regime are taken again in pieces (os_trajectory.c). A three-tap
  * filter [-a, 1 + 2a, -a] then restores the passband. Its coefficient is the
  * minimax choice for |H C - 1| over the kept band 0 .. OS_PASSBAND x fs, H the
  * chain's response to a tone when the loop is fast against the step (the
  * common case: then the node values follow the input exactly, the inner value
- * is the cubic interpolation of the input of os_stage.c, and the slopes follow
- * from the TR-BDF2 relations f_g = 2 (x_g - x_0) / (g h) - f_0 and
- * f_1 = (x_1 - A x_g + B x_0) / beta). Measured on the op-amp stage at its
- * defaults, that model predicts the response to 0.0005 dB (4x, 5-19 kHz).
+ * of a whole step is the cubic interpolation of the input of os_trajectory.c,
+ * and the slopes follow from the TR-BDF2 relations
+ * f_g = 2 (x_g - x_0) / (g h) - f_0 and f_1 = (x_1 - A x_g + B x_0) / w).
+ * Measured on the op-amp stage at its defaults, that model predicts the
+ * response to 0.0005 dB (4x, 5-19 kHz). The cubic's own small droop offsets
+ * the fourth-order term of sinc^2 that three taps cannot match: with an exact
+ * inner input the best three taps leave 0.0033 dB at 4x, and five taps (one
+ * step more delay, one frame more latency at 4x) would be needed.
  * Delay: two oversampled steps, which the oversampler's rounding pad absorbs
  * (os_oversampler_init(), inner = 2).
  *
