@@ -122,10 +122,12 @@ extern const OsCircuitOps os_circuit_pushpull;
  *  general-purpose op-amp (common practice: 1 k to 100 k). */
 #define OS_FEEDBACK_TOTAL 10.0e3
 
-/** Most Newton evaluations any circuit spends on one oversampled step: the
- *  push-pull circuit caps its work (os_circuit_pushpull.c: 24 on its fast path,
- *  300 beyond), so no setting can stall a host. */
-#define OS_CIRCUIT_MAX_EVALS 325
+/** Most residual evaluations any circuit spends on one sub-step (a whole
+ *  oversampled step or a piece of one): two implicit solves of at most 60
+ *  iterations and one closing evaluation each (os_circuit_opamp.c,
+ *  os_circuit_pushpull.c). The trajectory bounds the sub-steps
+ *  (os_trajectory_max_substeps()), so no setting can stall a host. */
+#define OS_CIRCUIT_SUBSTEP_EVALS 122
 
 /** Share of the op-amp's drive diverted by its limiter above which the limiter
  *  counts as engaged for the `limiting` meter. */

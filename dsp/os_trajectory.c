@@ -249,13 +249,30 @@ static void refine(OsTrajectory *t, double vin, double u0, double du, double jac
 /* Shortest piece, as a share of the step. */
 #define MIN_PIECE 1e-4
 /* Refining a step costs sub-steps; a step may spend at most what it has
- * been credited. Every step adds CREDIT_RATE sub-steps to the credit, which
- * holds at most CREDIT_MAX: a signal may use CREDIT_RATE extra sub-steps per
+ * been credited. Every step adds credit_rate() sub-steps to the credit, which
+ * holds at most CREDIT_MAX: a signal may use that many extra sub-steps per
  * step on average, and a burst of corners up to CREDIT_MAX at once, so the
- * cost of any signal is at most 1 + CREDIT_RATE times that of whole steps
- * over any stretch longer than CREDIT_MAX / CREDIT_RATE steps. */
+ * cost of any signal is at most 1 + credit_rate() times that of whole steps
+ * over any stretch longer than CREDIT_MAX / credit_rate() steps. From 4x up
+ * CREDIT_RATE per step; below, the same per unit of time (a step twice as long
+ * meets twice the corners): 16 at 2x, 32 at 1x. */
 #define CREDIT_RATE 8.0
 #define CREDIT_MAX 256.0
+
+static double rate_for(int factor)
+{
+    return factor >= 4 ? CREDIT_RATE : CREDIT_RATE * 4.0 / factor;
+}
+
+static double credit_rate(const OsTrajectory *t)
+{
+    return rate_for(t->factor);
+}
+
+double os_trajectory_max_substeps(int factor, double steps)
+{
+    return steps * (2.0 + rate_for(factor < 1 ? 1 : factor)) + CREDIT_MAX;
+}
 
 static int spend(OsTrajectory *t)
 {
@@ -442,12 +459,12 @@ static void located_step(OsTrajectory *t, double vin, int windowed, OsStepResult
     memcpy(rate, t->rate, sizeof(rate));
     memcpy(w0, t->weight, sizeof(w0));
     double u = 0.0, jac0 = t->last_jac;
-    t->credit = t->credit + CREDIT_RATE < CREDIT_MAX ? t->credit + CREDIT_RATE : CREDIT_MAX;
+    t->credit = fmin(t->credit + credit_rate(t), CREDIT_MAX);
     int iters = 0, split = 0;
     for (int piece = 0; u < 1.0; ++piece) {
         double len = 1.0 - u;
         /* a piece short of the step's end, a retake and every locating
-         * sub-step spend credit (see CREDIT_RATE); without it the rest of the
+         * sub-step spend credit (see credit_rate()); without it the rest of the
          * step is taken whole */
         const int last = piece + 1 >= MAX_PIECES || t->fresh || t->credit < 1.0;
         if (!last) {

@@ -67,6 +67,13 @@ void os_trajectory_init(OsTrajectory *t, const OsCircuitOps *ops, void *circuit,
  *  oversampling @p factor at host rate @p rate (Hz). Real-time safe. */
 void os_trajectory_reset(OsTrajectory *t, int factor, double rate);
 
+/** Most sub-steps @p steps consecutive oversampled steps at @p factor can
+ *  take, whatever the signal: each step's own, the credit it earns
+ *  (os_trajectory.c), one of overdraft, and what was banked before (at most
+ *  the credit's cap). Times OS_CIRCUIT_SUBSTEP_EVALS, the most any stretch
+ *  of audio can cost. */
+double os_trajectory_max_substeps(int factor, double steps);
+
 /** Delay of the band-limited sampling, oversampled steps. */
 int os_trajectory_delay(int factor);
 
