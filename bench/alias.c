@@ -16,14 +16,52 @@
  * ask for 1 V into 8 ohm, well inside the current limit, so what they show is
  * the crossover: class B (bias 0), the follower outside the loop (loop 0), and
  * inside a loop whose op-amp slews across the dead zone at each crossing
- * (loop 1; at 7 kHz the default 0.5 V/us is slew-limited there). */
+ * (loop 1; at 7 kHz the default 0.5 V/us is slew-limited there).
+ *
+ * Issue 9: the hard-slewed tone. 4 V peak at 9973 Hz needs 0.25 V/us; the
+ * op-amp gives 0.1, so it slews for most of each half cycle and turns round at
+ * each peak, and those turnarounds are the corners the trajectory must place
+ * inside the step. 9973 Hz is prime: no product of it falls on another's bin,
+ * and the record is a whole second (the output repeats every 48000 frames at
+ * 48 kHz). 10 kohm keeps the current limit out of it; the push-pull stage runs
+ * in class AB (bias 1.1 V, the follower conducting through the crossing)
+ * inside the loop, so the same op-amp corners pass through the follower. */
 static const AlTone tones[] = {
-    {"opamp_limit", "op-amp, 7 kHz at 0.8 FS (6 dB into the 25 mA limit)", OS_STAGE_OPAMP, 7000.0,
-     0.8, 0.0f, 0.0f},
-    {"pushpull_b_loop0", "push-pull class B, follower outside the loop, 7 kHz at -6 dBFS",
-     OS_STAGE_PUSHPULL, 7000.0, 0.5, 0.0f, 0.0f},
-    {"pushpull_b_loop1", "push-pull class B, follower inside the loop, 7 kHz at -6 dBFS",
-     OS_STAGE_PUSHPULL, 7000.0, 0.5, 1.0f, 0.0f},
+    {"opamp_limit",
+     "op-amp, 7 kHz at 0.8 FS (6 dB into the 25 mA limit)",
+     OS_STAGE_OPAMP,
+     7000.0,
+     0.8,
+     {{NULL, 0.0f}}},
+    {"pushpull_b_loop0",
+     "push-pull class B, follower outside the loop, 7 kHz at -6 dBFS",
+     OS_STAGE_PUSHPULL,
+     7000.0,
+     0.5,
+     {{"loop", 0.0f}, {"bias", 0.0f}, {NULL, 0.0f}}},
+    {"pushpull_b_loop1",
+     "push-pull class B, follower inside the loop, 7 kHz at -6 dBFS",
+     OS_STAGE_PUSHPULL,
+     7000.0,
+     0.5,
+     {{"loop", 1.0f}, {"bias", 0.0f}, {NULL, 0.0f}}},
+    {"opamp_slew",
+     "op-amp, 9973 Hz asked 4 V peak of a 0.1 V/us op-amp into 10 kohm (slewing)",
+     OS_STAGE_OPAMP,
+     9973.0,
+     1.0,
+     {{"fullscale", 2.0f}, {"slew", 0.1f}, {"load", 10000.0f}, {NULL, 0.0f}}},
+    {"pushpull_slew",
+     "push-pull class AB (bias 1.1 V), follower inside the loop, the same slewed tone",
+     OS_STAGE_PUSHPULL,
+     9973.0,
+     1.0,
+     {{"fullscale", 2.0f},
+      {"slew", 0.1f},
+      {"load", 10000.0f},
+      {"bias", 1.1f},
+      {"loop", 1.0f},
+      {NULL, 0.0f}}},
 };
 
 const AlTone *al_tones(size_t *count)
@@ -89,6 +127,7 @@ int al_analyse(const double *x, size_t n, double rate, double f0, AlResult *r)
     const double nn = (double)n * (double)n;
     const long long ln = (long long)n;
     double fund = 0.0, harm = 0.0, alias = 0.0, offgrid = 0.0, worst = 0.0, audio = 0.0;
+    double band = 0.0;
     size_t worst_bin = 0, audio_bin = 0;
     for (size_t b = 1; b <= n / 2; ++b) {
         const double re = out[b][0], im = out[b][1];
@@ -111,7 +150,11 @@ int al_analyse(const double *x, size_t n, double rate, double f0, AlResult *r)
             worst = p;
             worst_bin = b;
         }
-        if (p > audio && (double)b * rate / (double)n <= AL_AUDIO_HZ) {
+        const double hz = (double)b * rate / (double)n;
+        if (hz >= AL_AUDIO_LO_HZ && hz <= AL_AUDIO_HZ) {
+            band += p;
+        }
+        if (p > audio && hz <= AL_AUDIO_HZ) {
             audio = p;
             audio_bin = b;
         }
@@ -127,6 +170,7 @@ int al_analyse(const double *x, size_t n, double rate, double f0, AlResult *r)
     r->audio_dbc = 10.0 * log10((audio + tiny) / fund);
     r->audio_hz = (double)audio_bin * rate / (double)n;
     r->total_dbc = 10.0 * log10((alias + offgrid + tiny) / fund);
+    r->audio_total_dbc = 10.0 * log10((band + tiny) / fund);
     r->alias_dbc = 10.0 * log10((alias + tiny) / fund);
     r->offgrid_dbc = 10.0 * log10((offgrid + tiny) / fund);
     r->harmonic_dbc = 10.0 * log10((harm + tiny) / fund);
@@ -157,9 +201,14 @@ OsStage *al_make_stage(const AlTone *t, double rate, int factor)
         return NULL;
     }
     os_stage_set(s, OS_P_OVERSAMPLE, (float)factor);
-    if (t->kind == OS_STAGE_PUSHPULL) {
-        os_stage_set(s, OS_P_LOOP, t->loop);
-        os_stage_set(s, OS_P_BIAS, t->bias);
+    for (int i = 0; i < AL_MAX_SETS && t->set[i].symbol; ++i) {
+        const int port = os_port_find(t->kind, t->set[i].symbol);
+        const OsPortInfo *p = port >= 0 ? os_port_get(t->kind, (uint32_t)port) : NULL;
+        if (!p || p->id < 0) {
+            os_stage_free(s);
+            return NULL;
+        }
+        os_stage_set(s, (OsParam)p->id, t->set[i].value);
     }
     os_stage_reset(s); /* parameters at their targets, no smoothing ramp */
     return s;

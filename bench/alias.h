@@ -42,33 +42,48 @@
  *  (it keeps 0 .. OS_PASSBAND fs clean), which nobody hears. */
 #define AL_AUDIO_HZ 20000.0
 
+/** Lower end of the audio band for the audio_total_dbc figure, Hz. */
+#define AL_AUDIO_LO_HZ 20.0
+
+/** Most settings a tone changes from the defaults. */
+#define AL_MAX_SETS 6
+
+/** One setting: a port symbol (os_port_find()) and its value in port units. */
+typedef struct {
+    const char *symbol;
+    float value;
+} AlSet;
+
 /** One standard tone: the stage, its settings beyond the defaults, the tone. */
 typedef struct {
     const char *name; /**< short name used in tables and test names */
     const char *what; /**< one line for people */
     OsStageKind kind;
-    double freq; /**< Hz */
-    double amp;  /**< input peak, full-scale units */
-    float loop;  /**< push-pull feedback point (0 or 1); ignored for the op-amp stage */
-    float bias;  /**< push-pull bias (V); ignored for the op-amp stage */
+    double freq;            /**< Hz */
+    double amp;             /**< input peak, full-scale units */
+    AlSet set[AL_MAX_SETS]; /**< settings, up to the first NULL symbol */
 } AlTone;
 
-/** The standard tones of the performance issue (issue 4), all 7 kHz: the
- *  op-amp stage 6 dB into its current limit, the push-pull stage in class B
- *  with the follower outside the loop, and inside the (slew-limited) loop. */
+/** The standard tones: from issue 4, all 7 kHz, the op-amp stage 6 dB into
+ *  its current limit, the push-pull stage in class B with the follower outside
+ *  the loop, and inside the (slew-limited) loop; from issue 9, a 9973 Hz tone
+ *  asked 4 V peak of a 0.1 V/us op-amp into 10 kohm, through each stage (the
+ *  push-pull stage in class AB, follower inside the loop), so that the op-amp
+ *  slews for most of every half cycle. */
 const AlTone *al_tones(size_t *count);
 
 /** What al_analyse() finds, levels in dB relative to the fundamental. */
 typedef struct {
-    double fund_amp;     /**< fundamental, peak amplitude in the signal's unit */
-    double worst_dbc;    /**< largest single alias or inharmonic component */
-    double worst_hz;     /**< its frequency */
-    double audio_dbc;    /**< largest single one at or below AL_AUDIO_HZ */
-    double audio_hz;     /**< its frequency */
-    double total_dbc;    /**< all alias and inharmonic power together */
-    double alias_dbc;    /**< power on the alias grid bins only */
-    double offgrid_dbc;  /**< power in the inharmonic (off-grid) bins only */
-    double harmonic_dbc; /**< power of harmonics 2 and up below fs/2 (THD, IEC 60268-3) */
+    double fund_amp;        /**< fundamental, peak amplitude in the signal's unit */
+    double worst_dbc;       /**< largest single alias or inharmonic component */
+    double worst_hz;        /**< its frequency */
+    double audio_dbc;       /**< largest single one at or below AL_AUDIO_HZ */
+    double audio_hz;        /**< its frequency */
+    double total_dbc;       /**< all alias and inharmonic power together */
+    double audio_total_dbc; /**< all of it from AL_AUDIO_LO_HZ to AL_AUDIO_HZ */
+    double alias_dbc;       /**< power on the alias grid bins only */
+    double offgrid_dbc;     /**< power in the inharmonic (off-grid) bins only */
+    double harmonic_dbc;    /**< power of harmonics 2 and up below fs/2 (THD, IEC 60268-3) */
 } AlResult;
 
 /** Smallest record length (frames) of at least @p seconds that holds a whole

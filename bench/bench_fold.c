@@ -6,13 +6,17 @@
  * the harmonic of the tone that folds onto it at the circuit's own rate
  * (k f0 = m fs factor +- bin), and that harmonic's level in the continuous-time
  * waveform is measured: the same circuit, the same parameters, stepped on its
- * own at 12.288 and 24.576 MHz (256 and 512 x 48 kHz) so that the harmonic
- * lies far below that rate's Nyquist frequency; agreement of the two rates
- * shows the reference has converged. If the alias equals that harmonic's
- * level, the simulation at that factor already samples the true waveform
- * correctly: the alias is what ideal sampling of this waveform at that rate
- * gives, and only band-limiting the waveform before it is sampled (or a higher
- * rate) can lower it. */
+ * own at about 12.3 and 24.6 MHz (whole multiples of the tone near 256 and
+ * 512 x 48 kHz, so that a record of a few periods is coherent) so that the
+ * harmonic lies far below that rate's Nyquist frequency; agreement of the two
+ * rates shows the reference has converged. If the alias equals that
+ * harmonic's level, the simulation at that factor samples the true waveform
+ * and the alias is what ideal sampling at that rate gives. The band-limited
+ * sampling (os_window.h) attenuates that harmonic by its response at k f0, the
+ * triangle's sinc^2 (f h) times the three-tap compensation: the last columns
+ * give what is left of the harmonic after it, and the alias above that, which
+ * is the simulation's own error (timing of corners, interpolation) rather than
+ * the waveform's. */
 
 #include <inttypes.h>
 #include <math.h>
@@ -23,6 +27,7 @@
 #include "bench.h"
 #include "os_circuit.h"
 #include "os_solver.h"
+#include "os_window.h"
 
 enum { FOLD_RATE = 48000, REF_MULT_LO = 256, REF_MULT_HI = 512 };
 
@@ -81,6 +86,17 @@ static uint64_t fold(uint64_t f, uint64_t rate)
     return r <= rate / 2 ? r : rate - r;
 }
 
+/* The band-limited sampling's response at @p f Hz for steps of 1 / @p inner s
+ * (os_window.h): sinc^2 (f h) times 1 + 2a (1 - cos 2 pi f h), dB. */
+static double window_db(double f, uint64_t inner, int factor)
+{
+    const double x = M_PI * f / (double)inner;
+    const double sinc = x == 0.0 ? 1.0 : sin(x) / x;
+    const double a = os_window_coefficient(factor);
+    const double c = 1.0 + 2.0 * a * (1.0 - cos(2.0 * x));
+    return 20.0 * log10(fabs(sinc * sinc * c) + 1e-300);
+}
+
 int bench_fold(const BenchOptions *o)
 {
     size_t nt = 0;
@@ -91,20 +107,27 @@ int bench_fold(const BenchOptions *o)
            "harmonic of "
            "the tone that folds onto it at the circuit's own rate (48 kHz x factor), and that "
            "harmonic's level in the continuous-time waveform: the same circuit stepped on its "
-           "own at %.3f and %.3f MHz (two rates, to show the reference has converged). An "
-           "alias as large as the harmonic it comes from means the simulation already samples "
-           "the true waveform: ideal sampling at that rate gives the same alias.\n\n",
+           "own at about %.1f and %.1f MHz (whole multiples of the tone; two rates, to show "
+           "the reference has converged). An alias as large as the harmonic it comes from "
+           "means the simulation samples the true waveform: ideal sampling at that rate gives "
+           "the same alias. The band-limited sampling (docs/models.md) attenuates that "
+           "harmonic by its response there (sinc^2 of the step times the compensation); "
+           "*after the window* is what would be left of it, and an alias above that is the "
+           "simulation's own error (the timing of a corner, the interpolation of the input), "
+           "not the waveform's.\n\n",
            REF_MULT_LO * (double)FOLD_RATE * 1e-6, REF_MULT_HI * (double)FOLD_RATE * 1e-6);
     printf("| tone | oversample | worst alias (dBc) | at (Hz) | folded from harmonic | at (kHz) | "
            "its level in the waveform (dBc), %.1f MHz | the same, %.1f MHz | alias - harmonic "
-           "(dB) |\n|---|---|---|---|---|---|---|---|---|\n",
+           "(dB) | harmonic after the window (dBc) | alias - that (dB) "
+           "|\n|---|---|---|---|---|---|---|---|---|---|---|\n",
            REF_MULT_LO * (double)FOLD_RATE * 1e-6, REF_MULT_HI * (double)FOLD_RATE * 1e-6);
     int rc = 0;
     for (size_t ti = 0; ti < nt; ++ti) {
         const AlTone *t = &tones[ti];
         const uint64_t f0 = (uint64_t)llround(t->freq);
-        const uint64_t refs[2] = {(uint64_t)REF_MULT_LO * FOLD_RATE,
-                                  (uint64_t)REF_MULT_HI * FOLD_RATE};
+        const uint64_t refs[2] = {
+            f0 * (uint64_t)llround((double)REF_MULT_LO * FOLD_RATE / (double)f0),
+            f0 * (uint64_t)llround((double)REF_MULT_HI * FOLD_RATE / (double)f0)};
         double *rec[2] = {NULL, NULL};
         size_t n[2] = {0, 0};
         for (int j = 0; j < 2; ++j) {
@@ -145,11 +168,14 @@ int bench_fold(const BenchOptions *o)
                 }
             }
             if (best_k) {
-                printf("| %s | %d | %.1f | %.0f | %" PRIu64 " | %.0f | %.1f | %.1f | %+.1f |\n",
+                const double left = best[1] + window_db((double)(best_k * f0), inner, factors[fi]);
+                printf("| %s | %d | %.1f | %.0f | %" PRIu64
+                       " | %.0f | %.1f | %.1f | %+.1f | %.1f | %+.1f |\n",
                        t->name, factors[fi], ar.worst_dbc, ar.worst_hz, best_k,
-                       (double)(best_k * f0) * 1e-3, best[0], best[1], ar.worst_dbc - best[1]);
+                       (double)(best_k * f0) * 1e-3, best[0], best[1], ar.worst_dbc - best[1], left,
+                       ar.worst_dbc - left);
             } else {
-                printf("| %s | %d | %.1f | %.0f | none below %.1f MHz | | | | |\n", t->name,
+                printf("| %s | %d | %.1f | %.0f | none below %.1f MHz | | | | | | |\n", t->name,
                        factors[fi], ar.worst_dbc, ar.worst_hz, (double)refs[0] / 8.0 * 1e-6);
             }
         }

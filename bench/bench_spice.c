@@ -311,6 +311,15 @@ int bench_spice(const BenchOptions *o)
         if (!os_stage_available(t->kind)) {
             continue;
         }
+        if (al_record_length(RATE, t->freq, 0.0) > period) {
+            /* the comparison needs whole repetitions of the output within the
+             * last part of the run; the slewed 9973 Hz tones repeat only every
+             * second (the slew limit is compared with ngspice in tests/spice:
+             * opamp_slew and pushpull_spectrum_slew) */
+            printf("| %s | not compared here: the output repeats every %.3g s | | | | | |\n",
+                   t->name, (double)al_record_length(RATE, t->freq, 0.0) / RATE);
+            continue;
+        }
         SpiceRun runs[2];
         memset(runs, 0, sizeof(runs));
         if (run_ngspice(o, ngspice, t, tmax[0], frames, &runs[0]) != 0 ||
