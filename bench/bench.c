@@ -4,6 +4,7 @@
 /* outstage-bench: one run prints, as markdown tables, the speed of each stage
  * at every rate and oversampling factor with its latency and alias level, the
  * alias table of the standard tones, the cost of silence and denormal input,
+ * the cost on a fixed set of signals with the worst blocks and under automation,
  * a plain static clipping curve without oversampling, and ngspice on the same
  * circuits with its error against the plugin, and the harmonic each worst
  * alias folds from, measured in the continuous-time waveform. See
@@ -65,7 +66,7 @@ static void usage(FILE *f)
 {
     fprintf(f, "usage: outstage-bench [--quick] [--seconds S] [--repeat R] [--alias-seconds S]\n"
                "                      [--spice-seconds S] [--ngspice PATH] [--spice-dir DIR]\n"
-               "                      [--sections speed,static,spice,fold]\n"
+               "                      [--sections speed,signals,static,spice,fold]\n"
                "  --quick           short run to see that everything works (CI); figures rough\n"
                "  --seconds S       loud program per speed measurement (default 3)\n"
                "  --repeat R        repetitions per speed measurement, the fastest counts (3)\n"
@@ -90,7 +91,7 @@ static int parse_double(const char *s, double lo, double hi, double *v)
 int main(int argc, char **argv)
 {
     BenchOptions o = {3.0, 3, 1.0, 0.1, NULL, NULL};
-    const char *sections = "speed,static,spice,fold";
+    const char *sections = "speed,signals,static,spice,fold";
     for (int i = 1; i < argc; ++i) {
         const char *a = argv[i];
         const char *v = i + 1 < argc ? argv[i + 1] : NULL;
@@ -140,6 +141,9 @@ int main(int argc, char **argv)
     int rc = 0;
     if (strstr(sections, "speed")) {
         rc |= bench_speed(&o);
+    }
+    if (strstr(sections, "signals")) {
+        rc |= bench_signals(&o);
     }
     if (strstr(sections, "static")) {
         rc |= bench_static(&o);

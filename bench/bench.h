@@ -2,7 +2,8 @@
 /* SPDX-License-Identifier: ISC */
 
 /* The benchmark program's parts: the plugin's speed and alias tables
- * (bench_speed.c), the cheap static curves (bench_static.c), ngspice
+ * (bench_speed.c), the signal set, worst blocks and automation
+ * (bench_signals.c), the cheap static curves (bench_static.c), ngspice
  * (bench_spice.c) and the sources of the aliases (bench_fold.c), all timed in one run so that every
  * ratio is measured on the same machine at the same time. A measurement program, not a test:
  * nothing here asserts on time. */
@@ -64,6 +65,10 @@ void bench_curve_apply(BenchCurve c, const float *x, float *y, size_t n);
 /** Speed table (stage x rate x factor) with latency and alias level, then the
  *  alias table for the standard tones, then silence and denormal input. */
 int bench_speed(const BenchOptions *o);
+
+/** The signal set (sines, square, noise, the loud program) at 48 kHz 4x and
+ *  96 kHz 16x with the worst blocks, and a control automated. */
+int bench_signals(const BenchOptions *o);
 
 /** The plain static curves without oversampling: timed, alias measured. */
 int bench_static(const BenchOptions *o);
