@@ -261,6 +261,7 @@ void sp_circuit_of(const OsStage *s, double amp, double freq, SpCircuit *k)
     k->bias = (double)os_stage_get(s, OS_P_BIAS);
     k->emitter_r = (double)os_stage_get(s, OS_P_EMITTER_R);
     k->loop = os_stage_get(s, OS_P_LOOP) >= 0.5f;
+    k->source[0] = '\0';
 }
 
 void sp_put_circuit(SpSubst *sub, const SpCircuit *k, int follower)
@@ -285,6 +286,13 @@ void sp_put_circuit(SpSubst *sub, const SpCircuit *k, int follower)
         sp_put(sub, "FEEDBACK_R2", "Vfb %s fb 0", node);
     } else {
         sp_put(sub, "FEEDBACK_R2", "R2 %s fb {r2}", node);
+    }
+    if (k->source[0]) {
+        sp_put(sub, "SOURCE", "%s", k->source);
+    } else if (follower) {
+        sp_put(sub, "SOURCE", "Vin in 0 DC 0 SIN(0 {vin_amp} {freq})");
+    } else {
+        sp_put(sub, "SOURCE", "Vin in 0 SIN(0 {vin_amp} {freq})");
     }
     if (follower) {
         sp_put(sub, "IS", "%.17g", k->is);

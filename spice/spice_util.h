@@ -42,6 +42,9 @@ typedef struct {
         slew;                         /* Hz, dB, V, V, A, ohm, Hz, V/s */
     double is, beta, bias, emitter_r; /* the follower (push-pull stage): A, -, V, ohm */
     int loop;                         /* 1: feedback from the load */
+    /* the input source's netlist line(s) for node in; empty: the sine of
+     * vin_amp and freq (sp_put_circuit()) */
+    char source[256];
 } SpCircuit;
 
 /* @p k from stage @p s driven by a sine of @p amp full-scale units at @p freq. */
