@@ -18,7 +18,8 @@ static const int factors[] = {1, 2, 4, 8, 16};
 #define N_FACTORS (sizeof(factors) / sizeof(factors[0]))
 #define MAX_TONES 8
 
-/* Issue 4's targets for the alias level of the standard tones, dBc. */
+/* Issue 4's targets for the alias level of the standard tones, dBc (issue 9
+ * asks the first of the audio-band total of every tone). */
 #define TARGET_DEFAULT_DBC (-80.0)
 #define TARGET_TOP_DBC (-100.0)
 
@@ -76,7 +77,7 @@ static int speed_table(const BenchOptions *o)
     printf("\n## Speed, latency and alias level\n\n"
            "Loud program (two tones and noise bursts, peaks near 0 dBFS), every control at its "
            "default but the oversampling factor. Alias: the worst single alias or inharmonic "
-           "component of the stage's standard 7 kHz tones (next table), dBc, over 0 .. fs/2 "
+           "component of the stage's standard tones (next table), dBc, over 0 .. fs/2 "
            "and over the audio band 0 .. 20 kHz.\n\n");
     printf("| stage | rate (Hz) | oversample | ns/frame | x real time | Newton evaluations/step "
            "| latency (frames) | latency (ms) | worst alias (dBc) | below 20 kHz (dBc) |\n"
@@ -137,18 +138,22 @@ static int alias_table(const BenchOptions *o)
     printf("\n## Alias level of the standard tones\n\n"
            "Coherent sampling (IEEE Std 1241; Oppenheim and Schafer, ch. 10): after 50 ms "
            "and the latency, a record of a whole number of the tone's repetition periods "
-           "(%.3g s), rectangular window, FFTW. Every product of a steady 7 kHz tone lies on "
-           "the grid of multiples of gcd(7 kHz, fs) (1 kHz at 48 and 96 kHz, 700 Hz at "
-           "44.1 kHz), where the window is exact. Harmonic bins (multiples of 7 kHz below "
-           "fs/2) are not counted; *alias* is the other grid bins, *off grid* everything else "
-           "(noise or an unsettled stage), *worst* the largest single one of either (over "
-           "0 .. fs/2, and over the audio band 0 .. 20 kHz), "
-           "*total* all of them; dBc against the fundamental of the plugin's output. "
-           "Issue 4's targets: %.0f dBc at the default 4x, %.0f dBc at 16x.\n\n",
-           o->alias_seconds, TARGET_DEFAULT_DBC, TARGET_TOP_DBC);
-    printf("| tone | rate (Hz) | oversample | worst (dBc) | at (Hz) | worst below 20 kHz (dBc) "
-           "| at (Hz) | total (dBc) | alias grid (dBc) | off grid (dBc) | harmonics 2+ (dBc) | "
-           "target |\n|---|---|---|---|---|---|---|---|---|---|---|---|\n");
+           "(at least %.3g s), rectangular window, FFTW. Every product of a steady tone of "
+           "f0 lies on the grid of multiples of gcd(f0, fs) (for 7 kHz: 1 kHz at 48 and "
+           "96 kHz, 700 Hz at 44.1 kHz; for the prime 9973 Hz: 1 Hz, a record of 1 s), where "
+           "the window is exact. Harmonic bins (multiples of f0 below fs/2) are not counted; "
+           "*alias* is the other grid bins, *off grid* everything else (noise or an unsettled "
+           "stage), *worst* the largest single one of either (over 0 .. fs/2, and over the "
+           "audio band 0 .. 20 kHz), *total* all of them, *20 Hz - 20 kHz* all of them in "
+           "that band; dBc against the fundamental of the plugin's output. Targets at "
+           "48 kHz: issue 4's %.0f dBc for the worst at the default 4x and %.0f dBc at 16x "
+           "(the 7 kHz tones); issue 9's %.0f dBc for everything in 20 Hz - 20 kHz at 4x "
+           "(every tone).\n\n",
+           o->alias_seconds, TARGET_DEFAULT_DBC, TARGET_TOP_DBC, TARGET_DEFAULT_DBC);
+    printf(
+        "| tone | rate (Hz) | oversample | worst (dBc) | at (Hz) | worst below 20 kHz (dBc) "
+        "| at (Hz) | total (dBc) | 20 Hz - 20 kHz (dBc) | alias grid (dBc) | off grid (dBc) "
+        "| harmonics 2+ (dBc) | target |\n|---|---|---|---|---|---|---|---|---|---|---|---|---|\n");
     for (size_t t = 0; t < nt; ++t) {
         if (!os_stage_available(tones[t].kind)) {
             continue;
@@ -157,23 +162,36 @@ static int alias_table(const BenchOptions *o)
             for (size_t fi = 0; fi < N_FACTORS; ++fi) {
                 AlResult r;
                 if (bench_alias(t, rates[ri], factors[fi], o->alias_seconds, &r) != 0) {
-                    printf("| %s | %.0f | %d | failed | | | | | | | | |\n", tones[t].name,
+                    printf("| %s | %.0f | %d | failed | | | | | | | | | |\n", tones[t].name,
                            rates[ri], factors[fi]);
                     continue;
                 }
-                const double target = factors[fi] == 4    ? TARGET_DEFAULT_DBC
+                const int slewed = tones[t].freq != 7000.0;
+                const double target = slewed              ? 0.0
+                                      : factors[fi] == 4  ? TARGET_DEFAULT_DBC
                                       : factors[fi] == 16 ? TARGET_TOP_DBC
                                                           : 0.0;
-                char verdict[64] = "";
-                if (target < 0.0 && rates[ri] == 48000.0) {
-                    snprintf(verdict, sizeof(verdict), "%.0f: %s (%+.1f dB)", target,
-                             r.worst_dbc <= target ? "met" : "not met", r.worst_dbc - target);
+                char verdict[160] = "";
+                if (rates[ri] == 48000.0) {
+                    int len = 0;
+                    if (target < 0.0) {
+                        len = snprintf(verdict, sizeof(verdict), "worst %.0f: %s (%+.1f dB)",
+                                       target, r.worst_dbc <= target ? "met" : "not met",
+                                       r.worst_dbc - target);
+                    }
+                    if (factors[fi] == 4 && len >= 0 && (size_t)len < sizeof(verdict)) {
+                        snprintf(verdict + len, sizeof(verdict) - (size_t)len,
+                                 "%s20 Hz - 20 kHz %.0f: %s (%+.1f dB)", len ? "; " : "",
+                                 TARGET_DEFAULT_DBC,
+                                 r.audio_total_dbc <= TARGET_DEFAULT_DBC ? "met" : "not met",
+                                 r.audio_total_dbc - TARGET_DEFAULT_DBC);
+                    }
                 }
-                printf(
-                    "| %s | %.0f | %d | %.1f | %.0f | %.1f | %.0f | %.1f | %.1f | %.1f | %.1f | %s "
-                    "|\n",
-                    tones[t].name, rates[ri], factors[fi], r.worst_dbc, r.worst_hz, r.audio_dbc,
-                    r.audio_hz, r.total_dbc, r.alias_dbc, r.offgrid_dbc, r.harmonic_dbc, verdict);
+                printf("| %s | %.0f | %d | %.1f | %.0f | %.1f | %.0f | %.1f | %.1f | %.1f | %.1f | "
+                       "%.1f | %s |\n",
+                       tones[t].name, rates[ri], factors[fi], r.worst_dbc, r.worst_hz, r.audio_dbc,
+                       r.audio_hz, r.total_dbc, r.audio_total_dbc, r.alias_dbc, r.offgrid_dbc,
+                       r.harmonic_dbc, verdict);
                 fflush(stdout);
             }
         }
