@@ -95,17 +95,7 @@ static int run_ngspice(const BenchOptions *o, const char *ngspice, const AlTone 
     SpCircuit k;
     sp_circuit_of(s, t->amp, t->freq, &k);
     sp_put_circuit(&sub, &k, pp);
-    sp_put(&sub, "OUTFILE", "%s", table);
-    size_t cols = 3;
-    if (pp) {
-        sp_put(&sub, "ANALYSIS", "tran %.17g %.17g 0 %.17g\nlinearize v(out) v(in) v(pin) v(x)", dt,
-               tstop, tmax);
-        cols = 5;
-    } else {
-        sp_put(&sub, "TSTEP", "%.17g", dt);
-        sp_put(&sub, "TMAX", "%.17g", tmax);
-        sp_put(&sub, "TSTOP", "%.17g", tstop);
-    }
+    const size_t cols = sp_put_transient(&sub, pp, dt, tstop, tmax, table);
     os_stage_free(s);
 
     int rc = sp_write_netlist(tmpl, &sub, netlist);

@@ -389,13 +389,7 @@ double os_follower_map_pd(const OsFollowerMap *m, double vo)
 {
     double u = (vo + m->vmax) * m->inv_seg;
     u = u < 0.0 ? 0.0 : u > (double)OS_FOLLOWER_SEGMENTS ? (double)OS_FOLLOWER_SEGMENTS : u;
-    int seg = (int)u;
-    seg = seg >= OS_FOLLOWER_SEGMENTS ? OS_FOLLOWER_SEGMENTS - 1 : seg;
-    const int k = m->depth[seg];
-    const double sub = (u - seg) * (double)(1 << k);
-    int j = (int)sub;
-    j = j >= (1 << k) ? (1 << k) - 1 : j;
-    const double t = sub - j;
-    const double *a = m->node[m->base[seg] + j], *b = a + OS_FOLLOWER_NODE;
+    double t, len;
+    const double *a = os_follower_map_interval(m, u, &t, &len), *b = a + OS_FOLLOWER_NODE;
     return a[4] + t * (b[4] - a[4]);
 }

@@ -127,6 +127,24 @@ int os_follower_build_run(OsFollowerBuild *b, OsFollowerMap *m, int nodes);
  *  (about 100 us). */
 void os_follower_map_build(OsFollowerMap *m, OsFollowerBuild *b, const OsFollower *f, double vmax);
 
+/** The map's interval holding position @p u (segments from the low end,
+ *  within 0 .. OS_FOLLOWER_SEGMENTS): its first node (the next follows at
+ *  + OS_FOLLOWER_NODE), the share *t within it and its length *len, V.
+ *  Real-time safe. */
+static inline const double *os_follower_map_interval(const OsFollowerMap *m, double u, double *t,
+                                                     double *len)
+{
+    int seg = (int)u;
+    seg = seg >= OS_FOLLOWER_SEGMENTS ? OS_FOLLOWER_SEGMENTS - 1 : seg;
+    const int k = m->depth[seg];
+    const double sub = (u - seg) * (double)(1 << k);
+    int j = (int)sub;
+    j = j >= (1 << k) ? (1 << k) - 1 : j;
+    *t = sub - j;
+    *len = m->seg_len / (double)(1 << k);
+    return m->node[m->base[seg] + j];
+}
+
 /** out, ib and their slopes at @p vo from the map; outside its domain the map
  *  continues along the tangent at its end. Real-time safe. */
 static inline void os_follower_map_eval(const OsFollowerMap *m, double vo, double *out,
@@ -141,14 +159,8 @@ static inline void os_follower_map_eval(const OsFollowerMap *m, double vo, doubl
         ext = vo - m->vmax;
         u = (double)OS_FOLLOWER_SEGMENTS;
     }
-    int seg = (int)u;
-    seg = seg >= OS_FOLLOWER_SEGMENTS ? OS_FOLLOWER_SEGMENTS - 1 : seg;
-    const int k = m->depth[seg];
-    const double sub = (u - seg) * (double)(1 << k);
-    int j = (int)sub;
-    j = j >= (1 << k) ? (1 << k) - 1 : j;
-    const double t = sub - j, len = m->seg_len / (double)(1 << k);
-    const double *a = m->node[m->base[seg] + j], *b = a + OS_FOLLOWER_NODE;
+    double t, len;
+    const double *a = os_follower_map_interval(m, u, &t, &len), *b = a + OS_FOLLOWER_NODE;
     /* cubic Hermite on [0, 1]: h00 = (1 + 2t)(1 - t)^2, h10 = t (1 - t)^2,
      * h01 = t^2 (3 - 2t), h11 = t^2 (t - 1); slopes scaled by the interval */
     const double t2 = t * t, s = 1.0 - t, s2 = s * s;

@@ -301,3 +301,18 @@ void sp_put_circuit(SpSubst *sub, const SpCircuit *k, int follower)
         sp_put(sub, "EMITTER_R", "%.17g", k->emitter_r);
     }
 }
+
+size_t sp_put_transient(SpSubst *sub, int follower, double dt, double tstop, double tmax,
+                        const char *table)
+{
+    sp_put(sub, "OUTFILE", "%s", table);
+    if (follower) {
+        sp_put(sub, "ANALYSIS", "tran %.17g %.17g 0 %.17g\nlinearize v(out) v(in) v(pin) v(x)", dt,
+               tstop, tmax);
+        return 5;
+    }
+    sp_put(sub, "TSTEP", "%.17g", dt);
+    sp_put(sub, "TMAX", "%.17g", tmax);
+    sp_put(sub, "TSTOP", "%.17g", tstop);
+    return 3;
+}

@@ -55,6 +55,13 @@ void sp_circuit_of(const OsStage *s, double amp, double freq, SpCircuit *k);
  * loop 1, from the load) and, with @p follower, the pair's. */
 void sp_put_circuit(SpSubst *sub, const SpCircuit *k, int follower);
 
+/* The transient analysis of either template: output every @p dt s to
+ * @p tstop, steps of at most @p tmax, the table written to @p table. Returns
+ * the table's columns (time and the template's voltages: 3 for the op-amp
+ * stage's, 5 with @p follower). */
+size_t sp_put_transient(SpSubst *sub, int follower, double dt, double tstop, double tmax,
+                        const char *table);
+
 /* The whole file at @p path as a string (free() it), or NULL. */
 char *sp_read_text(const char *path);
 

@@ -246,17 +246,7 @@ static double *run_ngspice(const Case *c, const Signal *g, const char *dir, size
     const double dt = 1.0 / (HOST_RATE * GRID), tstop = (double)(rows - 1) * dt;
     SpSubst sub = {.n = 0};
     sp_put_circuit(&sub, &k, pp);
-    sp_put(&sub, "OUTFILE", "%s", table);
-    size_t cols = 3;
-    if (pp) {
-        sp_put(&sub, "ANALYSIS", "tran %.17g %.17g 0 %.17g\nlinearize v(out) v(in) v(pin) v(x)", dt,
-               tstop, TMAX);
-        cols = 5;
-    } else {
-        sp_put(&sub, "TSTEP", "%.17g", dt);
-        sp_put(&sub, "TMAX", "%.17g", TMAX);
-        sp_put(&sub, "TSTOP", "%.17g", tstop);
-    }
+    const size_t cols = sp_put_transient(&sub, pp, dt, tstop, TMAX, table);
     assert_int_equal(sp_write_netlist(tmpl, &sub, netlist), 0);
     const int rc = sp_run(ngspice_path, dir, name, log);
     if (rc != 0) {
