@@ -11,7 +11,8 @@
  * and the circuit reduces to the one state x. Each TR-BDF2 sub-step (os_solver.h)
  * gives the scalar equation  R(x) = x - c - w f(x) = 0,  strictly increasing
  * in x because f falls with x (every term of os_opamp.h does), so a safeguarded
- * Newton iteration always converges to its unique root. */
+ * iteration (Chebyshev's, inside a shrinking bracket: solve()) always converges
+ * to its unique root. */
 
 #include "os_circuit.h"
 
@@ -39,7 +40,7 @@ typedef struct {
     double fb;         /* share of x fed back: rho / G */
     double lim_near;   /* |io| above which the limiter's term is not negligible, A */
     double clamp_near; /* |x| above which the swing clamp's term is not negligible, V */
-    double accept;     /* a Halley step this short leaves an error below the tolerance, V */
+    double accept;     /* a third-order step this short leaves an error below the tolerance, V */
 } OsOpampCircuit;
 
 static inline double min2(double a, double b)

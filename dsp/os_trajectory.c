@@ -24,8 +24,20 @@
  * gain as well (a transistor turning on or off) made the class-B tone worse. */
 #define REFINE_JAC_4X 0.05
 
-static void lagrange_weights(int factor, double u, double *wt);
-static void whole_step_weights(int factor, double u, double *wt);
+static void lagrange_weights(int points, double u, double *wt);
+
+/* Points of the input's interpolation: for a whole step (the window's
+ * compensation rests on it) and for a piece at any share (see
+ * lagrange_weights()); at 1x two, a straight line. */
+static int whole_points(int factor)
+{
+    return factor == 1 ? 2 : 4;
+}
+
+static int piece_points(int factor)
+{
+    return factor == 1 ? 2 : OS_INPUT_POINTS;
+}
 
 void os_trajectory_init(OsTrajectory *t, const OsCircuitOps *ops, void *circuit,
                         unsigned char *saved)
@@ -50,7 +62,6 @@ void os_trajectory_reset(OsTrajectory *t, int factor, double rate)
     memset(t->hist, 0, sizeof(t->hist));
     t->last_jac = 0.0;
     t->fresh = 1;
-    t->events = 0;
     t->credit = 0.0;
 
     memset(t->rate, 0, sizeof(t->rate));
@@ -58,7 +69,7 @@ void os_trajectory_reset(OsTrajectory *t, int factor, double rate)
         t->weight[k] = 1.0;
     }
     t->ops->reset(t->circuit);
-    whole_step_weights(factor, OS_TRBDF2_G, t->inner);
+    lagrange_weights(whole_points(factor), OS_TRBDF2_G, t->inner);
     /* the inner points and the middle of halved steps */
     const double g = OS_TRBDF2_G;
     const double at[OS_TRAJECTORY_FIXED] = {
@@ -66,41 +77,41 @@ void os_trajectory_reset(OsTrajectory *t, int factor, double rate)
         0.25, 0.5 + 0.25 * g, 0.75,          0.75 + 0.25 * g};
     for (int i = 0; i < OS_TRAJECTORY_FIXED; ++i) {
         t->fixed_at[i] = at[i];
-        lagrange_weights(factor, at[i], t->fixed[i]);
+        lagrange_weights(piece_points(factor), at[i], t->fixed[i]);
     }
-}
-
-/* At 1x the input is not band-limited below the step rate (a host's step or
- * click reaches the circuit as it is): a polynomial through it would ring and
- * overshoot within the step, so the input is the straight line from the last
- * input to the present one, which cannot. */
-static void straight_weights(double u, double *wt)
-{
-    for (int j = 0; j < OS_INPUT_POINTS; ++j) {
-        wt[j] = 0.0;
-    }
-    wt[OS_INPUT_POINTS - 2] = 1.0 - u;
-    wt[OS_INPUT_POINTS - 1] = u;
 }
 
 /* The input within the present step, at share u of it: the Lagrange
- * polynomial through the last OS_INPUT_POINTS - 1 oversampled inputs (at
- * u = -(OS_INPUT_POINTS - 2), ..., -1, 0) and the present one (u = 1). It
- * needs no sample from the future, so no latency. The oversampled input is
- * band-limited to the kept band (os_oversampler.h): at 4x and 10 kHz the
- * six-point polynomial's error is 3e-5 at the TR-BDF2 inner point (the cubic's
- * of four points: 5e-4). */
-static void lagrange_weights(int factor, double u, double *wt)
+ * polynomial through the last @p points - 1 oversampled inputs (at
+ * u = -(points - 2), ..., -1, 0) and the present one (u = 1), into the last
+ * @p points weights of wt (the others 0). It needs no sample from the future,
+ * so no latency. The oversampled input is band-limited to the kept band
+ * (os_oversampler.h): at 4x and 10 kHz the six-point polynomial's error is
+ * 3e-5 at the TR-BDF2 inner point, the cubic's (four points) 5e-4.
+ *
+ * Pieces of split steps, at arbitrary shares, take six points: their inputs
+ * must not carry an interpolation error that changes with where in the step
+ * the corner fell (with the cubic there too, the hard-slewed tone of
+ * docs/performance.md rose from -89 to -72 dBc at 4x). Whole steps, most
+ * steps and those the chain's linear response rests on, keep the cubic: the
+ * window's three-tap compensation is designed around it (os_window.h), whose
+ * small droop happens to cancel the part of the window's own that three taps
+ * cannot, so the passband stays within 0.001 dB at 4x without another step of
+ * latency. At 1x the input is not band-limited below the step rate (a host's
+ * step or click reaches the circuit as it is): a polynomial through it would
+ * ring and overshoot within the step, so two points, the straight line from
+ * the last input to the present one, which cannot. */
+static void lagrange_weights(int points, double u, double *wt)
 {
     enum { N = OS_INPUT_POINTS };
-    if (factor == 1) {
-        straight_weights(u, wt);
-        return;
-    }
+    const int first = N - points;
     for (int j = 0; j < N; ++j) {
+        wt[j] = 0.0;
+    }
+    for (int j = first; j < N; ++j) {
         const double xj = j == N - 1 ? 1.0 : (double)(j - (N - 2));
         double w = 1.0;
-        for (int m = 0; m < N; ++m) {
+        for (int m = first; m < N; ++m) {
             if (m != j) {
                 const double xm = m == N - 1 ? 1.0 : (double)(m - (N - 2));
                 w *= (u - xm) / (xj - xm);
@@ -108,33 +119,6 @@ static void lagrange_weights(int factor, double u, double *wt)
         }
         wt[j] = w;
     }
-}
-
-/* The inner input of a whole step: the cubic through the last three inputs and
- * the present one (the oldest weights 0). Whole steps are most steps, and the
- * linear response of the chain rests on them: the window's three-tap
- * compensation is designed around this cubic (os_window.h), whose small droop
- * happens to cancel the part of the window's own droop that three taps cannot,
- * so the passband stays within 0.001 dB at 4x without another step of
- * latency. Pieces of split steps, at arbitrary shares, take the more exact
- * six-point polynomial: their inputs must not carry an interpolation error
- * that changes with where in the step the corner fell (with the cubic there
- * too, the hard-slewed tone of docs/performance.md rose from -89 to -72 dBc
- * at 4x). */
-static void whole_step_weights(int factor, double u, double *wt)
-{
-    if (factor == 1) {
-        straight_weights(u, wt);
-        return;
-    }
-    for (int j = 0; j < OS_INPUT_POINTS; ++j) {
-        wt[j] = 0.0;
-    }
-    double *w = wt + OS_INPUT_POINTS - 4; /* nodes -2, -1, 0, 1 */
-    w[0] = -(u + 1.0) * u * (u - 1.0) / 6.0;
-    w[1] = (u + 2.0) * u * (u - 1.0) / 2.0;
-    w[2] = -(u + 2.0) * (u + 1.0) * (u - 1.0) / 2.0;
-    w[3] = (u + 2.0) * (u + 1.0) * u / 6.0;
 }
 
 static double weighted(const double *wt, const double *hist, double vin)
@@ -156,7 +140,7 @@ static double input_at(const OsTrajectory *t, double vin, double u)
         }
     }
     double wt[OS_INPUT_POINTS];
-    lagrange_weights(t->factor, u, wt);
+    lagrange_weights(piece_points(t->factor), u, wt);
     return weighted(wt, t->hist, vin);
 }
 
@@ -197,7 +181,7 @@ static unsigned char *saved_at(const OsTrajectory *t, int depth)
  * the op-amp still changes regime is halved once more (quarters) in the
  * push-pull stage, where the op-amp slews across the dead zone and its corners
  * come and go within a quarter step: one level left the loop-1 tone at
- * -69.8 dBc at 4x, two reach -84.5. The op-amp stage's limiter corners need
+ * -69.8 dBc at 4x, two reach -84.2. The op-amp stage's limiter corners need
  * one level (-96.0 dBc; a second gave -93.9 and cost 40 % more on the loud
  * program, halving again nine halves in ten while the limiter is engaged).
  *
@@ -209,11 +193,7 @@ static void refine(OsTrajectory *t, double vin, double u0, double du, double jac
                    OsStepResult *r)
 {
     const OsCircuitOps *ops = t->ops;
-    if (depth >= ops->refine_depth || !regime_changed(jac0, r, du / t->factor)) {
-        window_add(t, u0, du, r);
-        return;
-    }
-    if (t->credit < 2.0) {
+    if (depth >= ops->refine_depth || t->credit < 2.0 || !regime_changed(jac0, r, du / t->factor)) {
         window_add(t, u0, du, r);
         return;
     }
@@ -259,19 +239,14 @@ static void refine(OsTrajectory *t, double vin, double u0, double du, double jac
 #define CREDIT_RATE 8.0
 #define CREDIT_MAX 256.0
 
-static double rate_for(int factor)
+static double credit_rate(int factor)
 {
     return factor >= 4 ? CREDIT_RATE : CREDIT_RATE * 4.0 / factor;
 }
 
-static double credit_rate(const OsTrajectory *t)
-{
-    return rate_for(t->factor);
-}
-
 double os_trajectory_max_substeps(int factor, double steps)
 {
-    return steps * (2.0 + rate_for(factor < 1 ? 1 : factor)) + CREDIT_MAX;
+    return steps * (2.0 + credit_rate(factor < 1 ? 1 : factor)) + CREDIT_MAX;
 }
 
 static int spend(OsTrajectory *t)
@@ -459,8 +434,8 @@ static void located_step(OsTrajectory *t, double vin, int windowed, OsStepResult
     memcpy(rate, t->rate, sizeof(rate));
     memcpy(w0, t->weight, sizeof(w0));
     double u = 0.0, jac0 = t->last_jac;
-    t->credit = fmin(t->credit + credit_rate(t), CREDIT_MAX);
-    int iters = 0, split = 0;
+    t->credit = fmin(t->credit + credit_rate(t->factor), CREDIT_MAX);
+    int iters = 0;
     for (int piece = 0; u < 1.0; ++piece) {
         double len = 1.0 - u;
         /* a piece short of the step's end, a retake and every locating
@@ -560,7 +535,6 @@ static void located_step(OsTrajectory *t, double vin, int windowed, OsStepResult
             z0[k] = dest; /* landed on the boundary: the zone entered */
         }
         u = len >= 1.0 - u ? 1.0 : u + len;
-        split += piece > 0;
     }
     ops->set_step(t->circuit, t->h);
     memcpy(t->ind, i0, sizeof(i0));
@@ -569,37 +543,14 @@ static void located_step(OsTrajectory *t, double vin, int windowed, OsStepResult
     memcpy(t->weight, w0, sizeof(w0));
     t->last_jac = jac0;
     t->fresh = 0;
-    t->events += split > 0;
     r->iters = iters;
 }
 
 double os_trajectory_step(OsTrajectory *t, double vin, OsStepResult *r)
 {
+    /* at 1x there is no window: the plain sample at the step's end */
     const int windowed = t->win.a != 0.0;
-    double y;
-    if (t->ops->n_indicators > 0) {
-        located_step(t, vin, windowed, r);
-        y = windowed ? os_window_close(&t->win) : r->vload;
-        push_input(t->hist, vin);
-        return y;
-    }
-    const OsCircuitOps *ops = t->ops;
-    if (windowed) {
-        /* kept in case the step has to be taken again in halves */
-        ops->save(t->circuit, saved_at(t, 0));
-        ops->step(t->circuit, vin, weighted(t->inner, t->hist, vin), r);
-        const double jac0 = t->last_jac;
-        refine(t, vin, 0.0, 1.0, jac0, 0, r);
-        t->last_jac = r->jac;
-        y = os_window_close(&t->win);
-    } else {
-        /* at 1x the input is not band-limited below the step rate: a straight
-         * line, which cannot overshoot */
-        ops->step(t->circuit, vin,
-                  t->hist[OS_INPUT_POINTS - 2] + OS_TRBDF2_G * (vin - t->hist[OS_INPUT_POINTS - 2]),
-                  r);
-        y = r->vload;
-    }
+    located_step(t, vin, windowed, r);
     push_input(t->hist, vin);
-    return y;
+    return windowed ? os_window_close(&t->win) : r->vload;
 }

@@ -55,7 +55,6 @@ typedef struct {
     double weight[OS_MAX_INDICATORS]; /**< and how much they mattered there */
     int fresh;                        /**< no step since reset: the zones are not known yet */
     double credit; /**< sub-steps the refinement may still spend (os_trajectory.c) */
-    int events;    /**< steps split at a regime change since reset (for tests) */
 } OsTrajectory;
 
 /** Bind @p t to a circuit's operations, its live state and the scratch space
