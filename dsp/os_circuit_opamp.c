@@ -207,6 +207,10 @@ static double solve(OsOpampCircuit *s, double c, double vin, double guess, int *
         x = isfinite(x) ? (x <= lo ? lo : hi) : 0.5 * (lo + hi);
     }
     int it = 0;
+    /* the last two steps, for the rule of os_newton_scalar() (rtsafe): a step
+     * that does not shrink to half the one before the last is replaced by
+     * bisection, so the iteration cannot cycle across a bend of the residual */
+    double older = hi - lo, newer = hi - lo;
     while (it < 60) {
         double d1, d2, dv;
         const double f = rate_at(s, x, vin, &d1, &d2, &dv);
@@ -233,12 +237,14 @@ static double solve(OsOpampCircuit *s, double c, double vin, double guess, int *
          * Newton's alone where the correction would be large */
         const double step = fabs(bend) < 0.5 ? newton * (1.0 + bend) : newton;
         double xn = x - step;
-        if (!(xn > lo && xn < hi)) {
-            xn = 0.5 * (lo + hi); /* left the bracket: bisect */
+        if (!(xn > lo && xn < hi) || !(fabs(step) <= 0.5 * fabs(older))) {
+            xn = 0.5 * (lo + hi); /* left the bracket or stopped shrinking: bisect */
         } else if (fabs(step) <= s->accept) {
             x = xn;
             break;
         }
+        older = newer;
+        newer = xn - x;
         x = xn;
         if (hi - lo <= 1e-12 * (1.0 + fabs(x))) {
             break;

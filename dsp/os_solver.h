@@ -56,12 +56,17 @@ typedef double (*OsScalarResidual)(void *ctx, double x, double *d);
 /**
  * Safeguarded Newton-Raphson on a strictly increasing residual: Newton steps
  * while they stay inside the bracket [lo, hi] (shrunk at every evaluation by the
- * sign of R), bisection otherwise, so it converges from any guess inside a valid
- * bracket. A guess outside the bracket starts at the bracket's nearer end.
- * Stops when a step is below @p tol, when its quadratic phase predicts the next
- * one below a tenth of @p tol, or after @p max_iter evaluations.
- * *iters (may be NULL) receives the number of evaluations. Real-time safe.
- * Inline, so that the circuit's residual is inlined into the loop.
+ * sign of R) and shrink fast enough, bisection otherwise, so it converges from
+ * any guess inside a valid bracket. "Fast enough": a step at most half the one
+ * before the last (the rule of rtsafe, Press, Teukolsky, Vetterling and
+ * Flannery, *Numerical Recipes*, sec. 9.4): where the residual's slope jumps
+ * over a few millivolts (a follower leaving its dead zone inside a fast loop,
+ * slope 1 on one side and 40 on the other), Newton steps can cycle between the
+ * two sides inside the bracket without ever converging. A guess outside the bracket starts at the
+ * bracket's nearer end. Stops when a step is below @p tol, when its quadratic phase predicts the
+ * next one below a tenth of @p tol, or after @p max_iter evaluations. *iters (may be NULL) receives
+ * the number of evaluations. Real-time safe. Inline, so that the circuit's residual is inlined into
+ * the loop.
  */
 static inline double os_newton_scalar(OsScalarResidual fn, void *ctx, double guess, double lo,
                                       double hi, double tol, int max_iter, int *iters)
@@ -73,6 +78,8 @@ static inline double os_newton_scalar(OsScalarResidual fn, void *ctx, double gue
     }
     int it = 0;
     double last = 0.0; /* the previous Newton step, 0 if there was none */
+    /* the last two steps taken (Newton or bisection), for the rtsafe rule */
+    double older = hi - lo, newer = hi - lo;
     while (it < max_iter) {
         double d;
         const double r = fn(ctx, x, &d);
@@ -100,13 +107,17 @@ static inline double os_newton_scalar(OsScalarResidual fn, void *ctx, double gue
             break;
         }
         double xn = x - step;
-        if (!(xn > lo && xn < hi)) {
-            xn = 0.5 * (lo + hi); /* Newton left the bracket (or d was bad): bisect */
+        if (!(xn > lo && xn < hi) || !(a <= 0.5 * fabs(older))) {
+            /* Newton left the bracket, d was bad, or the steps stopped
+             * shrinking: bisect */
+            xn = 0.5 * (lo + hi);
             last = 0.0;
         } else {
             last = step;
         }
         const double dx = xn - x;
+        older = newer;
+        newer = dx;
         x = xn;
         if (fabs(dx) <= tol) {
             break;

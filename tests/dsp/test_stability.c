@@ -54,18 +54,25 @@ typedef struct {
     float factor;
     Set set[8];
     const char *why;
+    int white; /* 1: full-scale white noise instead of the program material */
 } Case;
 
 /* The failures of issue 9, reproduced before the fix. */
 static const Case issue_cases[] = {
-    {OS_STAGE_PUSHPULL, 48000, 4, {{"gbw", 100}, {"slew", 100}}, "latched at 5.8 FS"},
-    {OS_STAGE_PUSHPULL, 48000, 4, {{"gbw", 50}, {"slew", 50}, {"bias", 0}}, "latched"},
-    {OS_STAGE_PUSHPULL, 48000, 4, {{"gbw", 30}, {"slew", 30}, {"bias", 0.3f}}, "latched"},
-    {OS_STAGE_PUSHPULL, 48000, 8, {{"gbw", 100}, {"slew", 100}, {"bias", 0.6f}}, "latched"},
-    {OS_STAGE_PUSHPULL, 48000, 16, {{"gbw", 100}, {"slew", 100}, {"bias", 0.6f}}, "latched"},
-    {OS_STAGE_PUSHPULL, 48000, 1, {{"gbw", 2}, {"slew", 100}}, "burst to 2.4 FS at 1x"},
-    {OS_STAGE_PUSHPULL, 48000, 1, {{NULL, 0}}, "burst to 3.3 FS at 1x, defaults"},
-    {OS_STAGE_PUSHPULL, 48000, 4, {{"gbw", 10}, {"slew", 10}, {"emitter_r", 0}}, "glitched"},
+    {OS_STAGE_PUSHPULL, 48000, 4, {{"gbw", 100}, {"slew", 100}}, "latched at 5.8 FS", 0},
+    {OS_STAGE_PUSHPULL, 48000, 4, {{"gbw", 50}, {"slew", 50}, {"bias", 0}}, "latched", 0},
+    {OS_STAGE_PUSHPULL, 48000, 4, {{"gbw", 30}, {"slew", 30}, {"bias", 0.3f}}, "latched", 0},
+    {OS_STAGE_PUSHPULL, 48000, 8, {{"gbw", 100}, {"slew", 100}, {"bias", 0.6f}}, "latched", 0},
+    {OS_STAGE_PUSHPULL, 48000, 16, {{"gbw", 100}, {"slew", 100}, {"bias", 0.6f}}, "latched", 0},
+    {OS_STAGE_PUSHPULL, 48000, 1, {{"gbw", 2}, {"slew", 100}}, "burst to 2.4 FS at 1x", 0},
+    {OS_STAGE_PUSHPULL, 48000, 1, {{NULL, 0}}, "burst to 3.3 FS at 1x, defaults", 0},
+    {OS_STAGE_PUSHPULL, 48000, 4, {{"gbw", 10}, {"slew", 10}, {"emitter_r", 0}}, "glitched", 0},
+    /* found trying the plugin through lv2apply on white noise: the push-pull
+     * sub-step's Newton iteration cycled across the follower's turn-on (slope
+     * 1 in the dead zone, 40 outside) and left single-sample spikes of 2.9 FS */
+    {OS_STAGE_PUSHPULL, 48000, 1, {{"gbw", 2}, {"slew", 100}}, "spikes of 2.9 FS at 1x", 1},
+    {OS_STAGE_PUSHPULL, 48000, 4, {{"gbw", 2}, {"slew", 100}}, NULL, 1},
+    {OS_STAGE_OPAMP, 48000, 1, {{"gbw", 2}, {"slew", 100}}, NULL, 1},
 };
 
 /* The controls whose range ends are explored, per stage. */
@@ -117,6 +124,18 @@ static size_t make_material(float *x, size_t n, double rate)
         x[k] = 0.0f;
     }
     return i;
+}
+
+/* 1.5 s of full-scale white noise (uniform, every sample a new level: the
+ * steepest input a host can send), then silence. Returns the frames of noise. */
+static size_t make_white(float *x, size_t n, double rate)
+{
+    const size_t m = (size_t)(1.5 * rate);
+    unsigned seed = 7u;
+    for (size_t i = 0; i < n; ++i) {
+        x[i] = i < m ? (float)((double)next_rand(&seed) / 16777216.0 * 2.0 - 1.0) : 0.0f;
+    }
+    return m;
 }
 
 /* Sum of |taps| of a half-band design. */
@@ -188,10 +207,10 @@ static int run_case(const Case *c, const OsOversamplerDesign *d, Worst *w)
             OS_OK);
     }
     os_stage_reset(s);
-    const size_t n = (size_t)(0.35 * c->rate);
+    const size_t n = (size_t)((c->white ? 1.6 : 0.35) * c->rate);
     float *x = malloc(n * sizeof(float)), *y = malloc(n * sizeof(float));
     assert_non_null(x && y);
-    const size_t end = make_material(x, n, c->rate);
+    const size_t end = c->white ? make_white(x, n, c->rate) : make_material(x, n, c->rate);
     double in_peak = 0.0;
     for (size_t i = 0; i < end; ++i) {
         in_peak = fmax(in_peak, fabs((double)x[i]));
@@ -252,7 +271,7 @@ static void corners(OsStageKind kind, int draws, const OsOversamplerDesign *d, W
                 continue;
             }
             for (int k = 0; k < draws; ++k) {
-                Case c = {kind, rates[r], factors[f], {{NULL, 0}}, NULL};
+                Case c = {kind, rates[r], factors[f], {{NULL, 0}}, NULL, 0};
                 int used = 0;
                 for (int i = 0; corner_symbols[i] && used < 8; ++i) {
                     const int idx = os_port_find(kind, corner_symbols[i]);
