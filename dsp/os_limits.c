@@ -32,3 +32,40 @@ double os_stage_expected_limit(OsStageKind kind, const float *values, int *curre
     }
     return fmin(swing, ilimit_v);
 }
+
+int os_stage_conflicts(OsStageKind kind, const float *values, OsConflict *out, int max)
+{
+    const double rail = (double)values[OS_P_RAIL];
+    const double floor_v = OS_SWING_MIN_SHARE * rail;
+    const double asked_op = rail - (double)values[OS_P_HEADROOM];
+    const double swing_op = fmax(asked_op, floor_v);
+    int n = 0;
+    if (asked_op < floor_v) {
+        if (n < max) {
+            out[n] = (OsConflict){"rail headroom",
+                                  "the op-amp's output swing (rail - headroom)",
+                                  asked_op,
+                                  swing_op,
+                                  "V",
+                                  "the swing's floor, 5 % of the rail (docs/models.md)"};
+        }
+        ++n;
+    }
+    if (kind == OS_STAGE_PUSHPULL) {
+        const double asked = swing_op - (double)values[OS_P_VBE];
+        if (asked < floor_v) {
+            if (n < max) {
+                out[n] = (OsConflict){
+                    "rail headroom vbe",
+                    "the load's swing through the follower (op-amp swing - vbe)",
+                    asked,
+                    0.0,
+                    "V",
+                    "the output transistors cannot turn fully on: the load gets only what they "
+                    "conduct below vbe"};
+            }
+            ++n;
+        }
+    }
+    return n;
+}

@@ -229,6 +229,11 @@ uint32_t os_stage_latency(const OsStage *s)
     return (uint32_t)s->os.latency;
 }
 
+double os_stage_output_volts(const OsStage *s)
+{
+    return s->gain_lin * s->fullscale / s->trim_lin;
+}
+
 const OsCircuitOps *os_stage_circuit(const OsStage *s, double *si, double *volts_per_fs)
 {
     memcpy(si, s->par.si, sizeof(s->par.si));
@@ -265,7 +270,7 @@ static void process(OsStage *s, const float *in, float *out, double *vload, uint
     _mm_setcsr(csr | 0x8040u);
 #endif
     double y[OS_OVERSAMPLE_MAX];
-    double peak = 0.0, power = 0.0, iters = 0.0;
+    double peak = 0.0, peak_v = 0.0, power = 0.0, iters = 0.0;
     uint32_t limited = 0, steps = 0;
     const int factor = s->os.factor;
     const double inv_factor = 1.0 / factor;
@@ -292,6 +297,7 @@ static void process(OsStage *s, const float *in, float *out, double *vload, uint
             OsStepResult r;
             y[k] = os_trajectory_step(&s->traj, y[k], &r);
             peak = fmax(peak, fabs(r.iload));
+            peak_v = fmax(peak_v, fabs(r.vload));
             psum += r.vload * r.iload;
             dissipation += r.dissipation;
             limited += (uint32_t)r.limiting;
@@ -338,6 +344,7 @@ static void process(OsStage *s, const float *in, float *out, double *vload, uint
      * outside physical sense get there, e.g. gigaampere idle currents) pegs at
      * the top of the scale, as a real meter would. */
     s->meters.peak_current = peg(s, OS_M_PEAK_CURRENT, peak);
+    s->meters.peak_load_v = peak_v;
     s->meters.limiting = steps ? 100.0 * limited / steps : 0.0;
     s->meters.load_power = peg(s, OS_M_LOAD_POWER, n ? power / n : 0.0);
     s->meters.dissipation = peg(s, OS_M_DISSIPATION, steps ? dissipation / steps : 0.0);

@@ -38,6 +38,10 @@ const char *os_strerror(OsStatus status);
 /** Meters of the last os_stage_process() call, from the simulated circuit. */
 typedef struct {
     double peak_current; /**< largest |load current|, A */
+    /** largest |load voltage| at the circuit's own steps, V: the stage's real
+     *  peak, before band-limiting (the output's samples overshoot a clipped
+     *  waveform's, by the Gibbs phenomenon). Not a port. */
+    double peak_load_v;
     double limiting;     /**< share of oversampled steps with the current limiter engaged, % */
     double load_power;   /**< mean power into the load, W */
     double dissipation;  /**< mean power in the output transistors (push-pull only), W */
@@ -89,6 +93,12 @@ void os_stage_meters(const OsStage *stage, OsMeters *meters);
 /** Processing delay in host frames at the current oversampling factor. Real-time safe. */
 uint32_t os_stage_latency(const OsStage *stage);
 
+/** Load volts that an output sample of 1.0 stands for at the present
+ *  (smoothed) settings: G x fullscale / 10^(trim/20), by the contract's
+ *  output = vload / (G x fullscale) x 10^(trim/20), while the stage is enabled
+ *  and not listening to the residual. Real-time safe. */
+double os_stage_output_volts(const OsStage *stage);
+
 /**
  * Process @p n frames and also return the load voltage (V) of each frame,
  * decimated through the same filters as the output, in @p vload (may be NULL).
@@ -108,6 +118,26 @@ void os_stage_process_probe(OsStage *stage, const float *in, float *out, double 
  * describing a design, not a simulation. Real-time safe.
  */
 double os_stage_expected_limit(OsStageKind kind, const float *values, int *current_limited);
+
+/** A combination of controls the circuit cannot have, and what the stage does
+ *  instead (os_stage_conflicts()). */
+typedef struct {
+    const char *controls; /**< the symbols involved, e.g. "rail headroom" */
+    const char *quantity; /**< what they set, e.g. "the op-amp's output swing" */
+    double asked;         /**< what the values ask for */
+    double used;          /**< what the stage uses instead */
+    const char *unit;     /**< of both, e.g. "V" */
+    const char *why;      /**< the rule that decided @c used */
+} OsConflict;
+
+/**
+ * The impossible combinations among @p values (port units, as
+ * os_stage_expected_limit() takes them) for a stage of @p kind: a swing left
+ * negative or below its floor by the headroom (and, through the follower, by
+ * vbe). Writes at most @p max into @p out; returns how many there are.
+ * Real-time safe.
+ */
+int os_stage_conflicts(OsStageKind kind, const float *values, OsConflict *out, int max);
 
 #ifdef __cplusplus
 }
