@@ -8,11 +8,156 @@
 
 #include <sndfile.h>
 
+#include <stdio.h>
 #include <string.h>
+
+/* Extensions and the container each names (the encodings Ogg holds are told
+ * apart by extension). */
+static const struct {
+    const char *ext;
+    int major, sub; /* sub: 0, any the container takes */
+} containers[] = {
+    {"wav", SF_FORMAT_WAV, 0},
+    {"aif", SF_FORMAT_AIFF, 0},
+    {"aiff", SF_FORMAT_AIFF, 0},
+    {"aifc", SF_FORMAT_AIFF, 0},
+    {"flac", SF_FORMAT_FLAC, 0},
+    {"ogg", SF_FORMAT_OGG, SF_FORMAT_VORBIS},
+    {"oga", SF_FORMAT_OGG, SF_FORMAT_VORBIS},
+    {"opus", SF_FORMAT_OGG, SF_FORMAT_OPUS},
+    {"caf", SF_FORMAT_CAF, 0},
+    {"w64", SF_FORMAT_W64, 0},
+    {"rf64", SF_FORMAT_RF64, 0},
+    {"au", SF_FORMAT_AU, 0},
+    {"snd", SF_FORMAT_AU, 0},
+    {"mp3", SF_FORMAT_MPEG, SF_FORMAT_MPEG_LAYER_III},
+};
+
+#define N_CONTAINERS (sizeof(containers) / sizeof(containers[0]))
+
+/* Encodings to try, nearest first, after the data's own. */
+static const int fallbacks[] = {SF_FORMAT_PCM_24, SF_FORMAT_PCM_16, SF_FORMAT_FLOAT,
+                                SF_FORMAT_VORBIS, SF_FORMAT_OPUS};
+
+static int writable(int format, int channels, int rate)
+{
+    SF_INFO info;
+    memset(&info, 0, sizeof(info));
+    info.format = format;
+    info.channels = channels;
+    info.samplerate = rate;
+    return sf_format_check(&info);
+}
+
+/* The WAV family (RIFF, its extensible header, W64, RF64) reads as one for
+ * the purpose of keeping a .wav name's format. */
+static int same_container(int a, int b)
+{
+    const int ma = a & SF_FORMAT_TYPEMASK, mb = b & SF_FORMAT_TYPEMASK;
+    const int wa = ma == SF_FORMAT_WAV || ma == SF_FORMAT_WAVEX;
+    const int wb = mb == SF_FORMAT_WAV || mb == SF_FORMAT_WAVEX;
+    return ma == mb || (wa && wb);
+}
+
+static void known_list(char *buf, size_t len)
+{
+    size_t used = 0;
+    buf[0] = '\0';
+    for (size_t i = 0; i < N_CONTAINERS && used + 8 < len; ++i) {
+        const int n = snprintf(buf + used, len - used, "%s.%s", i ? ", " : "", containers[i].ext);
+        used += n > 0 ? (size_t)n : 0;
+    }
+}
+
+int cli_audio_ext_check(const char *path, char *err, size_t len)
+{
+    char ext[16];
+    cli_path_ext(path, ext, sizeof(ext));
+    if (ext[0] == '\0') {
+        return 0;
+    }
+    for (size_t i = 0; i < N_CONTAINERS; ++i) {
+        if (strcmp(ext, containers[i].ext) == 0) {
+            return 0;
+        }
+    }
+    char list[256];
+    known_list(list, sizeof(list));
+    cli_err(err, len, "%s: unknown audio extension '.%s'; name the output %s", path, ext, list);
+    return -1;
+}
+
+void cli_audio_format_name(int format, char *buf, size_t len)
+{
+    SF_FORMAT_INFO major = {.format = format & SF_FORMAT_TYPEMASK};
+    SF_FORMAT_INFO sub = {.format = format & SF_FORMAT_SUBMASK};
+    const int ok_major = sf_command(NULL, SFC_GET_FORMAT_INFO, &major, sizeof(major)) == 0;
+    const int ok_sub = sf_command(NULL, SFC_GET_FORMAT_INFO, &sub, sizeof(sub)) == 0;
+    snprintf(buf, len, "%s, %s", ok_major ? major.name : "?", ok_sub ? sub.name : "?");
+}
+
+int cli_audio_format_for(const char *path, int base, int channels, int rate, int *format, char *err,
+                         size_t len)
+{
+    char ext[16];
+    cli_path_ext(path, ext, sizeof(ext));
+    int major = -1, sub = 0;
+    for (size_t i = 0; i < N_CONTAINERS; ++i) {
+        if (strcmp(ext, containers[i].ext) == 0) {
+            major = containers[i].major;
+            sub = containers[i].sub;
+        }
+    }
+    if (ext[0] == '\0' || (major >= 0 && same_container(major, base) &&
+                           (sub == 0 || sub == (base & SF_FORMAT_SUBMASK)))) {
+        *format = base; /* no extension, or the data's own container */
+        if (!writable(base, channels, rate)) {
+            char name[160];
+            cli_audio_format_name(base, name, sizeof(name));
+            cli_err(err, len, "%s: libsndfile cannot write %s with %d channels at %d Hz", path,
+                    name, channels, rate);
+            return -1;
+        }
+        return 0;
+    }
+    if (major < 0) {
+        return cli_audio_ext_check(path, err, len);
+    }
+    if (major == SF_FORMAT_WAV && channels > 2) {
+        major = SF_FORMAT_WAVEX; /* its header carries the channel layout */
+    }
+    if (sub != 0) {
+        *format = major | sub;
+        if (writable(*format, channels, rate)) {
+            return 0;
+        }
+    } else {
+        *format = major | (base & SF_FORMAT_SUBMASK);
+        if (writable(*format, channels, rate)) {
+            return 0;
+        }
+        for (size_t i = 0; i < sizeof(fallbacks) / sizeof(fallbacks[0]); ++i) {
+            *format = major | fallbacks[i];
+            if (writable(*format, channels, rate)) {
+                return 0;
+            }
+        }
+    }
+    SF_FORMAT_INFO info = {.format = major};
+    const int named = sf_command(NULL, SFC_GET_FORMAT_INFO, &info, sizeof(info)) == 0;
+    cli_err(err, len, "%s: libsndfile cannot write %s%s with %d channels at %d Hz", path,
+            named ? info.name : "this container", sub == SF_FORMAT_OPUS ? " (Opus)" : "", channels,
+            rate);
+    return -1;
+}
 
 int cli_write_audio(const char *path, const float *x, size_t frames, int channels, int rate,
                     int format, char *err, size_t len)
 {
+    int chosen;
+    if (cli_audio_format_for(path, format, channels, rate, &chosen, err, len) != 0) {
+        return -1;
+    }
     CliAtomic a;
     if (cli_atomic_open(&a, path, err, len) != 0) {
         return -1;
@@ -21,7 +166,7 @@ int cli_write_audio(const char *path, const float *x, size_t frames, int channel
     memset(&info, 0, sizeof(info));
     info.samplerate = rate;
     info.channels = channels;
-    info.format = format;
+    info.format = chosen;
     SNDFILE *f = sf_open_fd(a.fd, SFM_WRITE, &info, SF_FALSE);
     if (f == NULL) {
         cli_err(err, len, "%s: cannot write: %s", path, sf_strerror(NULL));

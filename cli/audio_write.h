@@ -1,8 +1,8 @@
 /* Copyright 2026 outstage developers */
 /* SPDX-License-Identifier: ISC */
 
-/* Writing a buffer the tool made (demo material, measurement records) as an
- * audio file, atomically. */
+/* Audio output: the container chosen from the output's name, and writing a
+ * buffer the tool made (demo material, measurement records) atomically. */
 
 #ifndef CLI_AUDIO_WRITE_H
 #define CLI_AUDIO_WRITE_H
@@ -10,10 +10,32 @@
 #include <stddef.h>
 
 /**
+ * The libsndfile format to write @p path in, from its extension: .wav, .aif /
+ * .aiff / .aifc, .flac, .ogg / .oga (Vorbis), .opus, .caf, .w64, .rf64, .au /
+ * .snd, .mp3 (where this libsndfile writes MPEG). @p base is the format the
+ * data has (the input's, or what the tool would write): a name without an
+ * extension, or with one of @p base's own container, keeps @p base whole;
+ * otherwise @p base's encoding is kept where the new container takes it, else
+ * the nearest it does (24-bit for FLAC from float, Vorbis for Ogg ...). An
+ * unknown extension, or a container that cannot hold @p channels channels at
+ * @p rate Hz, is refused. Returns 0 with *format set, or -1 with a message
+ * naming @p path.
+ */
+int cli_audio_format_for(const char *path, int base, int channels, int rate, int *format, char *err,
+                         size_t len);
+
+/** 0 if @p path has no extension or one cli_audio_format_for() knows; else
+ *  -1 with a message listing the known ones. */
+int cli_audio_ext_check(const char *path, char *err, size_t len);
+
+/** The format's name, e.g. "WAV (Microsoft), 32 bit float". */
+void cli_audio_format_name(int format, char *buf, size_t len);
+
+/**
  * Write @p frames interleaved frames of @p channels channels at @p rate Hz to
- * @p path in libsndfile format @p format (e.g. SF_FORMAT_WAV | SF_FORMAT_FLOAT).
- * Returns 0, or -1 with a message naming @p path; nothing is left behind on
- * failure.
+ * @p path, in the container its name asks for (cli_audio_format_for(), from
+ * @p format, e.g. SF_FORMAT_WAV | SF_FORMAT_FLOAT). Returns 0, or -1 with a
+ * message naming @p path; nothing is left behind on failure.
  */
 int cli_write_audio(const char *path, const float *x, size_t frames, int channels, int rate,
                     int format, char *err, size_t len);

@@ -9,6 +9,8 @@
 #include "measure_out.h"
 #include "plot.h"
 #include "render.h"
+#include "atomic.h"
+#include "audio_write.h"
 #include "settings.h"
 #include "sweep.h"
 
@@ -21,6 +23,18 @@ static int fail(int status, const char *msg)
 {
     fprintf(stderr, "outstage: %s\n", msg);
     return status;
+}
+
+/* Say on stderr where the controls ask for what the circuit cannot have. */
+static void warn_conflicts(const CliSettings *s)
+{
+    OsConflict c[CLI_MAX_CONFLICTS];
+    const int n = os_stage_conflicts(s->kind, s->value, c, CLI_MAX_CONFLICTS);
+    for (int i = 0; i < n && i < CLI_MAX_CONFLICTS; ++i) {
+        char text[CLI_ERR_LEN];
+        cli_conflict_text(s, &c[i], text, sizeof(text));
+        fprintf(stderr, "outstage: warning: %s\n", text);
+    }
 }
 
 /* The stage named by the first positional argument, with the preset and then
@@ -41,14 +55,19 @@ static int settings_from(const CliArgs *a, CliSettings *s, char *err, size_t len
             return -1;
         }
     }
+    cli_atomic_force(a->force);
+    warn_conflicts(s);
     return 0;
 }
 
 int cli_cmd_render(const CliArgs *a)
 {
     char err[CLI_ERR_LEN];
-    CliRenderJob job = {a->pos[1], a->pos[2], a->report, {0}, a->compensate, !a->quiet};
+    CliRenderJob job = {a->pos[1], a->pos[2], a->report, {0}, !a->stream, !a->quiet};
     if (settings_from(a, &job.settings, err, sizeof(err)) != 0) {
+        return fail(CLI_EXIT_USAGE, err);
+    }
+    if (cli_render_check_paths(&job, err, sizeof(err)) != 0) {
         return fail(CLI_EXIT_USAGE, err);
     }
     CliRenderResult res;
@@ -57,13 +76,23 @@ int cli_cmd_render(const CliArgs *a)
         return fail(CLI_EXIT_FAILURE, err);
     }
     uint64_t clipped = 0;
+    double peak_v = 0.0, file_v = 0.0;
     for (int c = 0; c < res.channels; ++c) {
         clipped += res.ch[c].clipped;
+        peak_v = fmax(peak_v, res.ch[c].peak_load_v);
+        file_v = fmax(file_v, res.ch[c].out_peak * res.output_volts);
     }
     printf("outstage: wrote %s (%d channel%s, %d Hz, %llu frames, %s; latency %u frames%s)\n",
            job.out_path, res.channels, res.channels == 1 ? "" : "s", res.rate,
            (unsigned long long)res.frames, res.format_name, (unsigned)res.latency,
-           job.compensate ? " removed" : " kept, as the plugin");
+           job.compensate ? " removed, the tail rendered" : " kept, as the plugin");
+    if (res.header_frames > res.read_frames) {
+        fprintf(stderr,
+                "outstage: warning: %s: truncated: its header announces %llu frames, the file "
+                "holds %llu; rendered what is there\n",
+                job.in_path, (unsigned long long)res.header_frames,
+                (unsigned long long)res.read_frames);
+    }
     if (clipped) {
         fprintf(stderr,
                 "outstage: warning: %s: %llu samples beyond 0 dBFS%s; lower trim to avoid it\n",
@@ -72,6 +101,14 @@ int cli_cmd_render(const CliArgs *a)
                         (res.format & SF_FORMAT_SUBMASK) == SF_FORMAT_DOUBLE
                     ? " (kept in this float format)"
                     : " (clipped in this format)");
+    }
+    if (job.settings.value[OS_P_ENABLE] > 0.5f && job.settings.value[OS_P_LISTEN] < 0.5f &&
+        file_v > CLI_OVERSHOOT_NOTE * peak_v && peak_v > 0.0) {
+        fprintf(stderr,
+                "outstage: note: %s peaks at %.3g V of load voltage, %.0f %% above the circuit's "
+                "own peak (%.3g V): band-limiting overshoots a clipped waveform (Gibbs; see "
+                "the man page, --report)\n",
+                job.out_path, file_v, 100.0 * (file_v / peak_v - 1.0), peak_v);
     }
     cli_render_result_free(&res);
     return 0;
@@ -92,6 +129,9 @@ int cli_cmd_measure(const CliArgs *a)
     char err[CLI_ERR_LEN];
     CliSettings s;
     if (settings_from(a, &s, err, sizeof(err)) != 0) {
+        return fail(CLI_EXIT_USAGE, err);
+    }
+    if (a->wav && cli_audio_ext_check(a->wav, err, sizeof(err)) != 0) {
         return fail(CLI_EXIT_USAGE, err);
     }
     CliSweepSpec spec;

@@ -120,6 +120,9 @@ void cli_measure_json(FILE *f, const CliSweepSpec *spec, const CliSweep *sw)
     cli_json_key(f, "settings", 1);
     cli_report_settings(f, s);
     fputs(",\n  ", f);
+    cli_json_key(f, "warnings", 1);
+    cli_report_conflicts(f, s);
+    fputs(",\n  ", f);
     cli_json_key(f, "sweep", 1);
     fputs("[\n", f);
     for (size_t k = 0; k < sw->n; ++k) {

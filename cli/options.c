@@ -6,7 +6,10 @@
 #include "cli.h"
 #include "settings.h"
 
+#include "outstage.h"
+
 #include <math.h>
+#include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
 
@@ -21,6 +24,8 @@ typedef enum {
     O_PRESET,
     O_REPORT,
     O_COMPENSATE,
+    O_STREAM,
+    O_FORCE,
     O_QUIET,
     O_FREQ,
     O_RATE,
@@ -42,39 +47,62 @@ typedef struct {
     const char *arg; /* NULL: a flag */
     unsigned commands;
     const char *help;
+    /* a number's range (lo < hi), and whether it must be whole; the same rule
+     * wherever the option appears */
+    double lo, hi;
+    int whole;
 } Option;
+
+/* Sweep and sine levels, dBFS: above +60 the stage's input clamp is reached
+ * (dsp/os_stage.c); below -200 nothing is left of a float's resolution. */
+#define LEVEL_LO (-200.0)
+#define LEVEL_HI 60.0
 
 static const Option options[] = {
     [O_SET] = {"set", "SYMBOL=VALUE", R | M | P,
                "set a control by its port symbol (repeatable; after any preset); see "
-               "'outstage list'"},
+               "'outstage list'",
+               0, 0, 0},
     [O_PRESET] = {"preset", "NAME", R | M | P,
-                  "start from one of our designs (see 'outstage list')"},
+                  "start from one of our designs (see 'outstage list')", 0, 0, 0},
     [O_REPORT] = {"report", "FILE.json", R,
-                  "write the meters of every channel and the output's clipping as JSON"},
+                  "write the meters of every channel and the output's clipping as JSON", 0, 0, 0},
     [O_COMPENSATE] = {"compensate", NULL, R,
-                      "remove the stage's latency: drop it at the start and flush it at the end "
-                      "(default: the plugin's output, latency included)"},
-    [O_QUIET] = {"quiet", NULL, R, "no progress bar"},
+                      "align the output with the input, as long (the default; kept for scripts)", 0,
+                      0, 0},
+    [O_STREAM] = {"stream", NULL, R,
+                  "write the plugin's own stream instead: the latency kept at the start, the "
+                  "length the input's, the tail cut (equals the LV2 plugin's output)",
+                  0, 0, 0},
+    [O_FORCE] = {"force", NULL, R | M | P | D,
+                 "replace outputs that are write-protected (mode 444 and the like)", 0, 0, 0},
+    [O_QUIET] = {"quiet", NULL, R, "no progress bar", 0, 0, 0},
     [O_FREQ] = {"freq", "HZ", M | P,
                 "sine frequency (default 1000), moved to the nearest one with whole cycles in "
-                "the record"},
-    [O_RATE] = {"rate", "HZ", M | P, "sample rate of the simulation (default 48000)"},
-    [O_FROM] = {"from", "DBFS", M | P, "lowest sweep level (default: 48 dB below the top)"},
+                "the record; below 0.45 x the rate",
+                1.0, 0.45 * OS_RATE_MAX, 0},
+    [O_RATE] = {"rate", "HZ", M | P, "sample rate of the simulation (default 48000)", OS_RATE_MIN,
+                OS_RATE_MAX, 1},
+    [O_FROM] = {"from", "DBFS", M | P, "lowest sweep level (default: 48 dB below the top)",
+                LEVEL_LO, LEVEL_HI, 0},
     [O_TO] = {"to", "DBFS", M | P,
-              "highest sweep level (default: 6 dB above where the stage should reach its limit)"},
-    [O_STEP] = {"step", "DB", M | P, "sweep step (default 1)"},
+              "highest sweep level (default: 6 dB above where the stage should reach its limit)",
+              LEVEL_LO, LEVEL_HI, 0},
+    [O_STEP] = {"step", "DB", M | P, "sweep step (default 1)", 0.01, 60.0, 0},
     [O_LEVEL] = {"level", "DBFS", P,
                  "sine level for transfer and spectrum (default: 6 dB above, resp. 3 dB below, "
-                 "where the stage should reach its limit)"},
-    [O_JSON] = {"json", NULL, M, "print one JSON object instead of the table"},
-    [O_CSV] = {"csv", NULL, M, "print CSV instead of the table"},
+                 "where the stage should reach its limit)",
+                 LEVEL_LO, LEVEL_HI, 0},
+    [O_JSON] = {"json", NULL, M, "print one JSON object instead of the table", 0, 0, 0},
+    [O_CSV] = {"csv", NULL, M, "print CSV instead of the table", 0, 0, 0},
     [O_WAV] = {"wav", "FILE.wav", M,
-               "also write each level's analysed record, one after another, as 32-bit float WAV"},
-    [O_SECONDS] = {"seconds", "S", D, "length of the demo material (default 8, 3 to 600)"},
-    [O_JOBS] = {"jobs", "N", D, "worker threads (default: one per processor)"},
-    [O_HELP] = {"help", NULL, R | M | P | D, "this text"},
-    [O_VERSION] = {"version", NULL, R | M | P | D, "the version"},
+               "also write each level's analysed record, one after another, as 32-bit float "
+               "(WAV, or the container the name's extension asks for)",
+               0, 0, 0},
+    [O_SECONDS] = {"seconds", "S", D, "length of the demo material (default 8)", 3.0, 600.0, 0},
+    [O_JOBS] = {"jobs", "N", D, "worker threads (default: one per processor)", 1.0, 64.0, 1},
+    [O_HELP] = {"help", NULL, R | M | P | D, "this text", 0, 0, 0},
+    [O_VERSION] = {"version", NULL, R | M | P | D, "the version", 0, 0, 0},
 };
 
 #define N_OPTIONS (sizeof(options) / sizeof(options[0]))
@@ -92,22 +120,9 @@ const char *cli_option_name(size_t i)
     return i < N_OPTIONS ? options[i].name : NULL;
 }
 
-static int number(const char *opt, const char *text, double *out, char *err, size_t len)
-{
-    char *end = NULL;
-    const double v = strtod(text, &end);
-    if (*text == '\0' || *end != '\0' || !isfinite(v)) {
-        cli_err(err, len, "--%s %s: not a number", opt, text);
-        return -1;
-    }
-    *out = v;
-    return 0;
-}
-
 static int apply(CliArgs *a, OptionId id, const char *value, char *err, size_t len)
 {
-    const char *name = options[id].name;
-    double v = 0.0;
+    const Option *o = &options[id];
     switch (id) {
     case O_SET:
         if (a->n_sets >= CLI_MAX_SETS) {
@@ -126,7 +141,13 @@ static int apply(CliArgs *a, OptionId id, const char *value, char *err, size_t l
         a->wav = value;
         return 0;
     case O_COMPENSATE:
-        a->compensate = 1;
+        a->stream = 0;
+        return 0;
+    case O_STREAM:
+        a->stream = 1;
+        return 0;
+    case O_FORCE:
+        a->force = 1;
         return 0;
     case O_QUIET:
         a->quiet = 1;
@@ -143,21 +164,18 @@ static int apply(CliArgs *a, OptionId id, const char *value, char *err, size_t l
     case O_VERSION:
         a->command = CLI_CMD_VERSION;
         return 0;
-    case O_JOBS:
-        if (number(name, value, &v, err, len) != 0) {
-            return -1;
-        }
-        if (v < 1.0 || v > 64.0 || v != floor(v)) {
-            cli_err(err, len, "--jobs %s: a whole number from 1 to 64", value);
-            return -1;
-        }
-        a->jobs = (int)v;
-        return 0;
     default:
         break;
     }
-    if (number(name, value, &v, err, len) != 0) {
+    char what[32];
+    snprintf(what, sizeof(what), "--%s", o->name);
+    double v = 0.0;
+    if (cli_number_in(what, value, o->lo, o->hi, o->whole, &v, err, len) != 0) {
         return -1;
+    }
+    if (id == O_JOBS) {
+        a->jobs = (int)v;
+        return 0;
     }
     double *slot[] = {
         [O_FREQ] = &a->freq, [O_RATE] = &a->rate,   [O_FROM] = &a->from,      [O_TO] = &a->to,
@@ -283,6 +301,16 @@ int cli_args_parse(int argc, char **argv, CliArgs *a, char *err, size_t len)
         cli_err(err, len, "--json and --csv: choose one");
         return -1;
     }
+    if (!isnan(a->freq) && a->freq >= 0.45 * (isnan(a->rate) ? CLI_DEFAULT_RATE : a->rate)) {
+        cli_err(err, len, "--freq %g: the sine must lie below %g Hz (0.45 x the rate)", a->freq,
+                0.45 * (isnan(a->rate) ? CLI_DEFAULT_RATE : a->rate));
+        return -1;
+    }
+    if (!isnan(a->from) && !isnan(a->to) && a->from > a->to) {
+        cli_err(err, len, "--from %g --to %g: the lowest level must not lie above the highest",
+                a->from, a->to);
+        return -1;
+    }
     return 0;
 }
 
@@ -362,8 +390,12 @@ void cli_help(FILE *f)
                                          command_names[c]);
             }
         }
-        char text[512];
-        snprintf(text, sizeof(text), "%s [%s]", options[i].help, cmds);
+        char text[512], range[96] = "";
+        if (options[i].lo < options[i].hi) {
+            snprintf(range, sizeof(range), "; %s%g to %g",
+                     options[i].whole ? "a whole number " : "", options[i].lo, options[i].hi);
+        }
+        snprintf(text, sizeof(text), "%s%s [%s]", options[i].help, range, cmds);
         fprintf(f, "  %-22s", head);
         wrap(f, text, 25, 79);
     }

@@ -26,6 +26,9 @@ typedef enum {
 /** Most --set values one command line takes. */
 #define CLI_MAX_SETS 64
 
+/** The simulation's rate unless --rate says otherwise, Hz. */
+#define CLI_DEFAULT_RATE 48000.0
+
 /** A parsed command line. Numbers left NAN were not given. */
 typedef struct {
     CliCommand command;
@@ -36,7 +39,9 @@ typedef struct {
     const char *preset; /**< --preset, or NULL */
     const char *report; /**< --report */
     const char *wav;    /**< --wav */
-    int compensate, quiet, json, csv;
+    int stream;         /**< --stream: the plugin's own stream, not aligned with the input */
+    int force;          /**< --force: replace write-protected outputs */
+    int quiet, json, csv;
     double freq, rate, from, to, step, level, seconds;
     int jobs;
 } CliArgs;

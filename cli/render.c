@@ -4,6 +4,7 @@
 #include "render.h"
 
 #include "atomic.h"
+#include "audio_write.h"
 #include "cli.h"
 #include "progress.h"
 #include "report.h"
@@ -56,50 +57,7 @@ int cli_check_input(const char *path, char *err, size_t len)
     return 0;
 }
 
-static void format_name(int format, char *buf, size_t len)
-{
-    SF_FORMAT_INFO major = {.format = format & SF_FORMAT_TYPEMASK};
-    SF_FORMAT_INFO sub = {.format = format & SF_FORMAT_SUBMASK};
-    const int ok_major = sf_command(NULL, SFC_GET_FORMAT_INFO, &major, sizeof(major)) == 0;
-    const int ok_sub = sf_command(NULL, SFC_GET_FORMAT_INFO, &sub, sizeof(sub)) == 0;
-    snprintf(buf, len, "%s, %s", ok_major ? major.name : "?", ok_sub ? sub.name : "?");
-}
-
-/* The output keeps the input's container and encoding. An output name whose
- * extension belongs to another container would mislabel the file: refuse it. */
-static int check_extension(const char *out, int in_format, char *err, size_t len)
-{
-    char ext[16];
-    cli_path_ext(out, ext, sizeof(ext));
-    if (ext[0] == '\0') {
-        return 0;
-    }
-    SF_FORMAT_INFO in_major = {.format = in_format & SF_FORMAT_TYPEMASK};
-    if (sf_command(NULL, SFC_GET_FORMAT_INFO, &in_major, sizeof(in_major)) != 0) {
-        return 0;
-    }
-    if (in_major.extension && strcasecmp(ext, in_major.extension) == 0) {
-        return 0;
-    }
-    int count = 0;
-    sf_command(NULL, SFC_GET_FORMAT_MAJOR_COUNT, &count, sizeof(count));
-    for (int i = 0; i < count; ++i) {
-        SF_FORMAT_INFO fi = {.format = i};
-        if (sf_command(NULL, SFC_GET_FORMAT_MAJOR, &fi, sizeof(fi)) != 0 || !fi.extension) {
-            continue;
-        }
-        if (strcasecmp(ext, fi.extension) == 0 &&
-            (fi.format & SF_FORMAT_TYPEMASK) != (in_format & SF_FORMAT_TYPEMASK)) {
-            cli_err(err, len, "%s: the output keeps the input's format (%s); name it .%s, not .%s",
-                    out, in_major.name, in_major.extension, ext);
-            return -1;
-        }
-    }
-    return 0;
-}
-
-/* Refuse an output (or report) that is the input or the other output. */
-static int check_paths(const CliRenderJob *job, char *err, size_t len)
+int cli_render_check_paths(const CliRenderJob *job, char *err, size_t len)
 {
     if (strcmp(job->in_path, job->out_path) == 0 || cli_same_file(job->in_path, job->out_path)) {
         cli_err(err, len, "%s: is the input file; choose another output", job->out_path);
@@ -111,13 +69,13 @@ static int check_paths(const CliRenderJob *job, char *err, size_t len)
             cli_err(err, len, "%s: is the input file; choose another report", job->report_path);
             return -1;
         }
-        if (strcmp(job->report_path, job->out_path) == 0 ||
-            cli_same_file(job->out_path, job->report_path)) {
-            cli_err(err, len, "%s: is the audio output; choose another report", job->report_path);
+        if (cli_outputs_clash(job->out_path, job->report_path)) {
+            cli_err(err, len, "%s: is the audio output %s; choose another report", job->report_path,
+                    job->out_path);
             return -1;
         }
     }
-    return 0;
+    return cli_audio_ext_check(job->out_path, err, len);
 }
 
 static void copy_strings(SNDFILE *in, SNDFILE *out)
@@ -128,6 +86,51 @@ static void copy_strings(SNDFILE *in, SNDFILE *out)
             sf_set_string(out, t, s); /* a format without the field ignores it */
         }
     }
+}
+
+/* The input's channel layout (a WAVE_FORMAT_EXTENSIBLE mask, a CAF or AIFF
+ * channel layout), where libsndfile reads one and the output's container
+ * holds one. */
+static void copy_channel_map(SNDFILE *in, SNDFILE *out, int channels)
+{
+    int map[256];
+    if (channels <= 0 || channels > 256) {
+        return;
+    }
+    if (sf_command(in, SFC_GET_CHANNEL_MAP_INFO, map, (int)((size_t)channels * sizeof(int))) ==
+        SF_TRUE) {
+        sf_command(out, SFC_SET_CHANNEL_MAP_INFO, map, (int)((size_t)channels * sizeof(int)));
+    }
+}
+
+/* The frames the file's header announces, which libsndfile does not report
+ * when the data is shorter (info.frames is what is there): read from its log,
+ * where the WAV family's reader notes "data : N (should be M)" (bytes; the
+ * frame size from "Block Align") and the AIFF reader "Frame count read from
+ * 'COMM' chunk (N)". Other containers (FLAC's STREAMINFO) report the header's
+ * count as info.frames; reading then comes up short. */
+static uint64_t announced_frames(SNDFILE *in, const SF_INFO *info)
+{
+    uint64_t frames = (uint64_t)(info->frames > 0 ? info->frames : 0);
+    char log[8192];
+    if (sf_command(in, SFC_GET_LOG_INFO, log, (int)sizeof(log)) <= 0) {
+        return frames;
+    }
+    log[sizeof(log) - 1] = '\0';
+    long long n = 0, m = 0, align = 0;
+    const char *d = strstr(log, "\ndata : ");
+    const char *b = strstr(log, "Block Align");
+    if (d && sscanf(d, "\ndata : %lld (should be %lld)", &n, &m) == 2 && b &&
+        sscanf(b, "Block Align : %lld", &align) == 1 && align > 0 && n > m) {
+        const uint64_t said = (uint64_t)(n / align);
+        return said > frames ? said : frames;
+    }
+    const char *c = strstr(log, "Frame count read from 'COMM' chunk (");
+    if (c && sscanf(c, "Frame count read from 'COMM' chunk (%lld)", &n) == 1 && n > 0 &&
+        (uint64_t)n > frames) {
+        return (uint64_t)n;
+    }
+    return frames;
 }
 
 /* Per-render working state. */
@@ -170,6 +173,7 @@ static void process_block(Work *w, CliRenderResult *res, uint32_t n)
         os_stage_meters(w->stage[c], &m);
         CliChannelStats *s = &res->ch[c];
         s->peak_current = fmax(s->peak_current, m.peak_current);
+        s->peak_load_v = fmax(s->peak_load_v, m.peak_load_v);
         /* Sums of meter x frames; divided by the frame count at the end. */
         s->limiting += m.limiting * n;
         s->load_power += m.load_power * n;
@@ -198,17 +202,25 @@ static int write_report(const CliRenderJob *job, const CliRenderResult *res, Cli
     if (cli_atomic_open(rep, job->report_path, err, len) != 0) {
         return -1;
     }
-    FILE *f = fdopen(rep->fd, "w");
+    /* a stream on a copy of the descriptor: the atomic file keeps its own for
+     * the commit (a spool's data is copied from it then) */
+    const int fd = dup(rep->fd);
+    FILE *f = fd >= 0 ? fdopen(fd, "w") : NULL;
     if (f == NULL) {
         cli_err(err, len, "%s: cannot write: %s", job->report_path, strerror(errno));
+        if (fd >= 0) {
+            close(fd);
+        }
         cli_atomic_abort(rep);
         return -1;
     }
     cli_report_render(f, job, res);
-    const int bad = fflush(f) != 0 || ferror(f) || fsync(rep->fd) != 0;
-    const int e = errno;
-    fclose(f);
-    rep->fd = -1;
+    int bad = fflush(f) != 0 || ferror(f);
+    int e = errno;
+    if (fclose(f) != 0 && !bad) {
+        bad = 1;
+        e = errno;
+    }
     if (bad) {
         cli_err(err, len, "%s: cannot write: %s", job->report_path, strerror(e));
         cli_atomic_abort(rep);
@@ -277,6 +289,7 @@ static int run(const CliRenderJob *job, Work *w, CliRenderResult *res, sf_count_
         return -1;
     }
     res->frames = (uint64_t)written;
+    res->read_frames = (uint64_t)read_total;
     for (int c = 0; c < w->channels; ++c) {
         CliChannelStats *s = &res->ch[c];
         const double frames = (double)(processed > 0 ? processed : 1);
@@ -290,7 +303,8 @@ static int run(const CliRenderJob *job, Work *w, CliRenderResult *res, sf_count_
 int cli_render(const CliRenderJob *job, CliRenderResult *res, char *err, size_t len)
 {
     memset(res, 0, sizeof(*res));
-    if (check_paths(job, err, len) != 0 || cli_check_input(job->in_path, err, len) != 0) {
+    if (cli_render_check_paths(job, err, len) != 0 ||
+        cli_check_input(job->in_path, err, len) != 0) {
         return -1;
     }
     Work w;
@@ -305,20 +319,18 @@ int cli_render(const CliRenderJob *job, CliRenderResult *res, char *err, size_t 
     }
     res->channels = w.channels = info.channels;
     res->rate = info.samplerate;
-    res->format = info.format;
-    format_name(info.format, res->format_name, sizeof(res->format_name));
-    if (check_extension(job->out_path, info.format, err, len) != 0) {
+    res->header_frames = announced_frames(w.in, &info);
+    int oformat;
+    if (cli_audio_format_for(job->out_path, info.format, info.channels, info.samplerate, &oformat,
+                             err, len) != 0) {
         work_free(&w);
         return -1;
     }
+    res->format = oformat;
+    cli_audio_format_name(oformat, res->format_name, sizeof(res->format_name));
     SF_INFO oinfo = info;
     oinfo.frames = 0;
-    if (!sf_format_check(&oinfo)) {
-        cli_err(err, len, "%s: libsndfile reads but cannot write its format (%s)", job->in_path,
-                res->format_name);
-        work_free(&w);
-        return -1;
-    }
+    oinfo.format = oformat;
     res->ch = calloc((size_t)info.channels, sizeof(CliChannelStats));
     w.stage = calloc((size_t)info.channels, sizeof(OsStage *));
     w.inter = malloc((size_t)BLOCK * (size_t)info.channels * sizeof(float));
@@ -338,6 +350,7 @@ int cli_render(const CliRenderJob *job, CliRenderResult *res, char *err, size_t 
         }
     }
     res->latency = os_stage_latency(w.stage[0]);
+    res->output_volts = os_stage_output_volts(w.stage[0]);
 
     CliAtomic out, rep;
     memset(&rep, 0, sizeof(rep));
@@ -357,6 +370,7 @@ int cli_render(const CliRenderJob *job, CliRenderResult *res, char *err, size_t 
     /* Integer formats: clip beyond full scale rather than wrap around. */
     sf_command(w.out, SFC_SET_CLIPPING, NULL, SF_TRUE);
     copy_strings(w.in, w.out);
+    copy_channel_map(w.in, w.out, info.channels);
 
     int rc = run(job, &w, res, info.frames, err, len);
     if (rc == 0) {

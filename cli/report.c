@@ -23,6 +23,22 @@ void cli_report_settings(FILE *f, const CliSettings *s)
     fputc('}', f);
 }
 
+void cli_report_conflicts(FILE *f, const CliSettings *s)
+{
+    OsConflict c[CLI_MAX_CONFLICTS];
+    const int n = os_stage_conflicts(s->kind, s->value, c, CLI_MAX_CONFLICTS);
+    fputc('[', f);
+    for (int i = 0; i < n && i < CLI_MAX_CONFLICTS; ++i) {
+        char text[1024];
+        cli_conflict_text(s, &c[i], text, sizeof(text));
+        if (i) {
+            fputs(", ", f);
+        }
+        cli_json_string(f, text);
+    }
+    fputc(']', f);
+}
+
 /* 20 log10 of a peak, or null for silence. */
 static void dbfs(FILE *f, double peak)
 {
@@ -54,6 +70,15 @@ void cli_report_render(FILE *f, const CliRenderJob *job, const CliRenderResult *
     fprintf(f, "%u", (unsigned)res->latency);
     cli_json_key(f, "latency_compensated", 0);
     fputs(job->compensate ? "true" : "false", f);
+    cli_json_key(f, "input_header_frames", 0);
+    fprintf(f, "%llu", (unsigned long long)res->header_frames);
+    cli_json_key(f, "input_frames", 0);
+    fprintf(f, "%llu", (unsigned long long)res->read_frames);
+    cli_json_key(f, "input_truncated", 0);
+    fputs(res->header_frames > res->read_frames ? "true" : "false", f);
+    fputs(",\n  ", f);
+    cli_json_key(f, "warnings", 1);
+    cli_report_conflicts(f, &job->settings);
     fputs(",\n  ", f);
     cli_json_key(f, "settings", 1);
     cli_report_settings(f, &job->settings);
@@ -78,6 +103,12 @@ void cli_report_render(FILE *f, const CliRenderJob *job, const CliRenderResult *
         }
         cli_json_key(f, "output_peak_dbfs", 0);
         dbfs(f, s->out_peak);
+        /* the circuit's own peak, and the file's in the same volts: the file's
+         * band-limited samples overshoot a clipped waveform's (man page) */
+        cli_json_key(f, "peak_load_v", 0);
+        cli_json_number(f, s->peak_load_v);
+        cli_json_key(f, "output_peak_load_v", 0);
+        cli_json_number(f, s->out_peak * res->output_volts);
         cli_json_key(f, "clipped_samples", 0);
         fprintf(f, "%llu", (unsigned long long)s->clipped);
         fputs(c + 1 < res->channels ? "},\n" : "}\n", f);

@@ -17,4 +17,8 @@ void cli_report_render(FILE *f, const CliRenderJob *job, const CliRenderResult *
 /** Write the settings of @p s as one JSON object {"symbol": value, ...} in port order. */
 void cli_report_settings(FILE *f, const CliSettings *s);
 
+/** The impossible combinations of @p s (os_stage_conflicts()) as a JSON array
+ *  of strings, [] if none. */
+void cli_report_conflicts(FILE *f, const CliSettings *s);
+
 #endif

@@ -155,11 +155,15 @@ int cli_settings_assign(CliSettings *s, const char *assignment, char *err, size_
     char range[160];
     describe_range(port, range, sizeof(range));
     const char *text = eq + 1;
-    char *end = NULL;
-    const double v = strtod(text, &end);
-    if (*text == '\0' || end == text || *end != '\0' || !isfinite(v)) {
-        cli_err(err, len, "--set %s: '%s' is not a number; %s takes %s", assignment, text, symbol,
-                range);
+    double v = 0.0;
+    const int parsed = cli_number(text, &v);
+    if (parsed == -2) {
+        cli_err(err, len, "--set %s: out of range; %s takes %s", assignment, symbol, range);
+        return -1;
+    }
+    if (parsed != 0) {
+        cli_err(err, len, "--set %s: '%s' is not a decimal number; %s takes %s", assignment, text,
+                symbol, range);
         return -1;
     }
     if (port->points && (port->flags & (OS_PF_ENUMERATION | OS_PF_TOGGLE))) {
@@ -258,4 +262,25 @@ double cli_settings_volts_per_unit(const CliSettings *s)
 double cli_settings_expected_limit(const CliSettings *s, int *current_limited)
 {
     return os_stage_expected_limit(s->kind, s->value, current_limited);
+}
+
+void cli_conflict_text(const CliSettings *s, const OsConflict *c, char *buf, size_t len)
+{
+    char names[128];
+    size_t used = 0;
+    names[0] = '\0';
+    char list[64];
+    snprintf(list, sizeof(list), "%s", c->controls);
+    char *save = NULL;
+    for (char *t = strtok_r(list, " ", &save); t; t = strtok_r(NULL, " ", &save)) {
+        const int index = os_port_find(s->kind, t);
+        const OsPortInfo *port = index >= 0 ? os_port_get(s->kind, (uint32_t)index) : NULL;
+        if (port && used < sizeof(names)) {
+            const int n = snprintf(names + used, sizeof(names) - used, "%s%s=%g", used ? " " : "",
+                                   t, (double)s->value[port->id]);
+            used += n > 0 ? (size_t)n : 0;
+        }
+    }
+    snprintf(buf, len, "%s ask for %s of %.3g %s; the stage uses %.3g %s: %s", names, c->quantity,
+             c->asked, c->unit, c->used, c->unit, c->why);
 }

@@ -79,4 +79,16 @@ double cli_settings_volts_per_unit(const CliSettings *s);
  *  or the swing sets it: os_stage_expected_limit() for the values of @p s. */
 double cli_settings_expected_limit(const CliSettings *s, int *current_limited);
 
+/** Most impossible combinations one design reports (os_stage_conflicts()). */
+#define CLI_MAX_CONFLICTS 4
+
+/** The output's peak in load volts above the circuit's own by this factor
+ *  earns a note on stderr (band-limiting's overshoot of a clipped waveform). */
+#define CLI_OVERSHOOT_NOTE 1.05
+
+/** One line for @p c with the controls' values from @p s, e.g. "rail=1.5
+ *  headroom=5 ask for the op-amp's output swing (rail - headroom) of -3.5 V;
+ *  the stage uses 0.075 V: the swing's floor, ...". */
+void cli_conflict_text(const CliSettings *s, const OsConflict *c, char *buf, size_t len);
+
 #endif

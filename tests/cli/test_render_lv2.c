@@ -153,8 +153,9 @@ static void path_in(char *buf, size_t len, const char *name)
     snprintf(buf, len, "%s/%s", dir, name);
 }
 
-/* Render with the tool and with the plugin; @p shift is the latency the tool
- * removed (--compensate) or 0. Returns the number of differing samples. */
+/* Render with the tool and with the plugin: with @p compensate the tool's
+ * default (the latency removed, the tail rendered), else --stream (the
+ * plugin's own stream). Returns the number of differing samples. */
 static long compare(const char *stage, const char *uri, const Set *sets, size_t n_sets,
                     int compensate, int format)
 {
@@ -171,8 +172,8 @@ static long compare(const char *stage, const char *uri, const Set *sets, size_t 
         argv[argc++] = "--set";
         argv[argc++] = setv[k];
     }
-    if (compensate) {
-        argv[argc++] = "--compensate";
+    if (!compensate) {
+        argv[argc++] = "--stream";
     }
     argv[argc] = NULL;
     assert_int_equal(run_tool(argv), 0);
@@ -199,8 +200,8 @@ static long compare(const char *stage, const char *uri, const Set *sets, size_t 
         free(ref);
         ref = read_all(conv, &cinfo);
     }
-    /* The plugin reports its latency; with --compensate the tool's frame i is
-     * the plugin's frame i + latency. */
+    /* The plugin reports its latency; compensated, the tool's frame i is the
+     * plugin's frame i + latency. */
     const int lat = compensate ? 48 : 0; /* 4x oversampling: 48 frames (README) */
     long differ = 0;
     double worst = 0.0, peak = 0.0;
@@ -214,7 +215,7 @@ static long compare(const char *stage, const char *uri, const Set *sets, size_t 
     }
     printf("%s%s, %s: %d frames x %d channels, %ld samples differ (largest difference %g, "
            "output peak %.3f)\n",
-           stage, compensate ? " --compensate" : "",
+           stage, compensate ? " (latency compensated)" : " --stream",
            (format & SF_FORMAT_SUBMASK) == SF_FORMAT_FLOAT ? "float WAV" : "24-bit WAV", FRAMES,
            CHANNELS, differ, worst, peak);
     assert_true(peak > 0.01); /* something came out */
