@@ -167,8 +167,10 @@ int cli_atomic_open(CliAtomic *a, const char *path, char *err, size_t len)
         return -1;
     }
     struct stat st;
-    if (lstat(path, &st) == 0 && S_ISLNK(st.st_mode)) {
-        /* write the link's final target, not a file in the link's place */
+    if (lstat(path, &st) == 0 && S_ISLNK(st.st_mode) &&
+        !(stat(path, &st) == 0 && !S_ISREG(st.st_mode))) {
+        /* write the link's final target, not a file in the link's place (a
+         * link to a device or pipe, /dev/stdout, is opened through the link) */
         a->target = cli_resolve(path);
         if (a->target == NULL) {
             cli_err(err, len, "%s: cannot write: the symbolic link leads nowhere writable (%s)",

@@ -30,6 +30,15 @@ void cli_catch_signals(void)
     sigaction(SIGINT, &sa, NULL);
     sigaction(SIGTERM, &sa, NULL);
     sigaction(SIGHUP, &sa, NULL);
+    /* A file grown past its size limit (ulimit -f) and a pipe whose reader
+     * left would end the process with a temporary file left behind: as
+     * errors (EFBIG, EPIPE) the write fails, the run says so and cleans up. */
+    struct sigaction ign;
+    memset(&ign, 0, sizeof(ign));
+    ign.sa_handler = SIG_IGN;
+    sigemptyset(&ign.sa_mask);
+    sigaction(SIGXFSZ, &ign, NULL);
+    sigaction(SIGPIPE, &ign, NULL);
 }
 
 void cli_err(char *err, size_t len, const char *fmt, ...)

@@ -23,7 +23,9 @@
 /** Set by SIGINT, SIGTERM and SIGHUP once cli_catch_signals() has run. */
 extern volatile sig_atomic_t cli_interrupted;
 
-/** Route SIGINT, SIGTERM and SIGHUP to cli_interrupted instead of ending the process. */
+/** Route SIGINT, SIGTERM and SIGHUP to cli_interrupted instead of ending the
+ *  process, and ignore SIGXFSZ and SIGPIPE (writes then fail with EFBIG or
+ *  EPIPE and the run cleans up). */
 void cli_catch_signals(void);
 
 /** printf-style message into @p err (at most @p len bytes, always terminated). */

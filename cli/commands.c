@@ -18,6 +18,8 @@
 
 #include <math.h>
 #include <stdio.h>
+#include <sys/stat.h>
+#include <unistd.h>
 
 static int fail(int status, const char *msg)
 {
@@ -60,6 +62,22 @@ static int settings_from(const CliArgs *a, CliSettings *s, char *err, size_t len
     return 0;
 }
 
+/* What the output's encoding does to samples beyond full scale. */
+static const char *clip_word(int format)
+{
+    switch (format & SF_FORMAT_SUBMASK) {
+    case SF_FORMAT_FLOAT:
+    case SF_FORMAT_DOUBLE:
+        return " (kept in this float format)";
+    case SF_FORMAT_VORBIS:
+    case SF_FORMAT_OPUS:
+    case SF_FORMAT_MPEG_LAYER_III:
+        return " (encoded as they are; players of this lossy format may clip them)";
+    default:
+        return " (clipped in this format)";
+    }
+}
+
 int cli_cmd_render(const CliArgs *a)
 {
     char err[CLI_ERR_LEN];
@@ -70,6 +88,12 @@ int cli_cmd_render(const CliArgs *a)
     if (cli_render_check_paths(&job, err, sizeof(err)) != 0) {
         return fail(CLI_EXIT_USAGE, err);
     }
+    /* the summary must not land in the audio when OUT is standard output */
+    struct stat so, st;
+    FILE *say = fstat(STDOUT_FILENO, &so) == 0 && stat(job.out_path, &st) == 0 &&
+                        so.st_dev == st.st_dev && so.st_ino == st.st_ino
+                    ? stderr
+                    : stdout;
     CliRenderResult res;
     if (cli_render(&job, &res, err, sizeof(err)) != 0) {
         cli_render_result_free(&res);
@@ -82,10 +106,10 @@ int cli_cmd_render(const CliArgs *a)
         peak_v = fmax(peak_v, res.ch[c].peak_load_v);
         file_v = fmax(file_v, res.ch[c].out_peak * res.output_volts);
     }
-    printf("outstage: wrote %s (%d channel%s, %d Hz, %llu frames, %s; latency %u frames%s)\n",
-           job.out_path, res.channels, res.channels == 1 ? "" : "s", res.rate,
-           (unsigned long long)res.frames, res.format_name, (unsigned)res.latency,
-           job.compensate ? " removed, the tail rendered" : " kept, as the plugin");
+    fprintf(say, "outstage: wrote %s (%d channel%s, %d Hz, %llu frames, %s; latency %u frames%s)\n",
+            job.out_path, res.channels, res.channels == 1 ? "" : "s", res.rate,
+            (unsigned long long)res.frames, res.format_name, (unsigned)res.latency,
+            job.compensate ? " removed, the tail rendered" : " kept, as the plugin");
     if (res.header_frames > res.read_frames) {
         fprintf(stderr,
                 "outstage: warning: %s: truncated: its header announces %llu frames, the file "
@@ -96,11 +120,7 @@ int cli_cmd_render(const CliArgs *a)
     if (clipped) {
         fprintf(stderr,
                 "outstage: warning: %s: %llu samples beyond 0 dBFS%s; lower trim to avoid it\n",
-                job.out_path, (unsigned long long)clipped,
-                (res.format & SF_FORMAT_SUBMASK) == SF_FORMAT_FLOAT ||
-                        (res.format & SF_FORMAT_SUBMASK) == SF_FORMAT_DOUBLE
-                    ? " (kept in this float format)"
-                    : " (clipped in this format)");
+                job.out_path, (unsigned long long)clipped, clip_word(res.format));
     }
     if (job.settings.value[OS_P_ENABLE] > 0.5f && job.settings.value[OS_P_LISTEN] < 0.5f &&
         file_v > CLI_OVERSHOOT_NOTE * peak_v && peak_v > 0.0) {

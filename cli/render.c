@@ -93,8 +93,8 @@ static void copy_strings(SNDFILE *in, SNDFILE *out)
  * holds one. */
 static void copy_channel_map(SNDFILE *in, SNDFILE *out, int channels)
 {
-    int map[256];
-    if (channels <= 0 || channels > 256) {
+    int map[1024]; /* libsndfile's most channels (SF_MAX_CHANNELS) */
+    if (channels <= 0 || channels > 1024) {
         return;
     }
     if (sf_command(in, SFC_GET_CHANNEL_MAP_INFO, map, (int)((size_t)channels * sizeof(int))) ==

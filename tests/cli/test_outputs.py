@@ -202,6 +202,22 @@ check(ok and wav_info("piped.wav")[3] == 4800,
 os.remove("pipe")
 os.remove("piped.wav")
 
+# Standard output into a pipe, named as /dev/stdout names it (a link to
+# /proc/self/fd/1; a private link, so that a regression cannot replace the
+# system's /dev/stdout): written in place through the link; the summary line
+# goes to stderr, not into the audio.
+os.symlink("/proc/self/fd/1", "stdout")
+p = subprocess.run([EXE, "render", "opamp", "in.wav", "stdout", "--quiet"], capture_output=True,
+                   timeout=300)
+with open("piped.wav", "wb") as f:
+    f.write(p.stdout)
+check(p.returncode == 0 and container("piped.wav") == "wav" and wav_info("piped.wav")[3] == 4800,
+      "render to /dev/stdout through a pipe gives a whole WAV on stdout (%s)" %
+      p.stderr.decode().strip())
+check(os.path.islink("stdout"), "the link to standard output is still a link")
+os.remove("piped.wav")
+os.remove("stdout")
+
 pcm16_wav("target.wav", 10)
 os.symlink("target.wav", "link.wav")
 rc, _, err = run("render", "opamp", "in.wav", "link.wav", "--quiet")
@@ -226,6 +242,55 @@ pcm16_wav("trunc.wav", 24989, channels=1, announce=388949)
 rc, _, err = run("render", "opamp", "trunc.wav", "t_out.wav", "--quiet")
 check(rc == 0 and "trunc.wav" in err and "388949" in err and "24989" in err,
       "a truncated WAV is named with both counts: %s" % err.strip())
+
+# Hostile files: zero-length, a malformed fmt chunk, a huge data size, a
+# header alone, many channels; an output past the file size limit (as a full
+# disk fails a write) and a pipe whose reader leaves: one line naming the
+# file, a non-zero exit where it failed, nothing half-written.
+open("zero.wav", "wb").close()
+refused(1, "zero.wav", "render", "opamp", "zero.wav", "h_out.wav")
+d = bytearray(open("in.wav", "rb").read())
+d[20:22] = struct.pack("<H", 0x1234)  # an unknown format tag
+open("corrupt.wav", "wb").write(bytes(d))
+refused(1, "corrupt.wav", "render", "opamp", "corrupt.wav", "h_out.wav")
+d = bytearray(open("in.wav", "rb").read())
+d[40:44] = struct.pack("<I", 0xFFFFFFF0)  # the data chunk's size
+open("huge.wav", "wb").write(bytes(d))
+rc, _, err = run("render", "opamp", "huge.wav", "h_out.wav", "--quiet")
+check(rc == 0 and "huge.wav" in err and "truncated" in err and wav_info("h_out.wav")[3] == 4800,
+      "a huge data size renders what is there, with a warning: %s" % err.strip())
+open("hdr.wav", "wb").write(open("in.wav", "rb").read()[:44])
+rc, _, err = run("render", "opamp", "hdr.wav", "h_out.wav", "--quiet")
+check(rc == 0 and "hdr.wav" in err and "4800" in err and wav_info("h_out.wav")[3] == 0,
+      "a header alone gives an empty file, with a warning: %s" % err.strip())
+pcm16_wav("many.wav", 50, channels=300)
+rc, _, err = run("render", "opamp", "many.wav", "h_out.wav", "--quiet")
+check(rc == 0 and wav_info("h_out.wav")[1] == 300, "300 channels: exit %d %s" % (rc, err.strip()))
+os.remove("h_out.wav")
+import resource  # noqa: E402
+
+
+def small_files():
+    resource.setrlimit(resource.RLIMIT_FSIZE, (4000, 4000))
+
+
+before = listing()
+p = subprocess.run([EXE, "render", "opamp", "in.wav", "big.wav", "--quiet"], capture_output=True,
+                   text=True, preexec_fn=small_files, timeout=300)
+check(p.returncode == 1 and "big.wav" in p.stderr and listing() == before,
+      "past the file size limit: exit %d, nothing left: %s" % (p.returncode, p.stderr.strip()))
+os.mkfifo("gone")
+quit_early = subprocess.Popen(["head", "-c", "100", "gone"], stdout=subprocess.DEVNULL)
+pcm16_wav("long.wav", 480000)
+rc, _, err = run("render", "opamp", "long.wav", "gone", "--quiet")
+try:
+    quit_early.wait(20)
+except subprocess.TimeoutExpired:  # the FIFO was replaced: nobody ever writes it
+    quit_early.kill()
+check(rc == 1 and "gone" in err and err.count("\n") == 1,
+      "a pipe whose reader left: exit %d, %s" % (rc, err.strip()))
+os.remove("gone")
+os.remove("long.wav")
 
 # 4. Channel layouts: 7.1 (0x63f) and 5.1 side (0x60f).
 for mask, ch in [(0x63F, 8), (0x60F, 6)]:
