@@ -165,12 +165,15 @@ os.remove("old.wav")
 
 # 2. Devices, FIFOs, links, modes. As root, a private device node stands in for
 # /dev/null (made with mknod: a regression must not replace the system's).
+null, full = "/dev/null", "/dev/full"
 if os.geteuid() == 0:
-    os.mknod("null", 0o666 | stat.S_IFCHR, os.makedev(1, 3))
-    os.mknod("full", 0o666 | stat.S_IFCHR, os.makedev(1, 7))
-    null, full = os.path.join(t, "null"), os.path.join(t, "full")
-else:
-    null, full = "/dev/null", "/dev/full"
+    try:
+        os.mknod("null", 0o666 | stat.S_IFCHR, os.makedev(1, 3))
+        os.mknod("full", 0o666 | stat.S_IFCHR, os.makedev(1, 7))
+        open("null", "wb").close()  # a container may forbid opening new nodes
+        null, full = os.path.join(t, "null"), os.path.join(t, "full")
+    except OSError as e:
+        print("note: no private device nodes here (%s): the system's are used" % e)
 rc, out, err = run("render", "opamp", "in.wav", null, "--report", "r.json", "--quiet")
 check(rc == 0 and stat.S_ISCHR(os.stat(null).st_mode) and os.path.isfile("r.json"),
       "render to %s: exit %d, still a character device, report written (%s)" % (null, rc,
