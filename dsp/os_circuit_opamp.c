@@ -237,6 +237,9 @@ static double solve(OsOpampCircuit *s, double c, double vin, double guess, int *
          * Newton's alone where the correction would be large */
         const double step = fabs(bend) < 0.5 ? newton * (1.0 + bend) : newton;
         double xn = x - step;
+        if (xn == x) {
+            break; /* the step is below x's last digit: x is the root to rounding */
+        }
         if (!(xn > lo && xn < hi) || !(fabs(step) <= 0.5 * fabs(older))) {
             xn = 0.5 * (lo + hi); /* left the bracket or stopped shrinking: bisect */
         } else if (fabs(step) <= s->accept) {
