@@ -268,7 +268,7 @@ static double solve_substep(OsPushpullCircuit *s, double c, double vin, double g
     const double xlo = fmax(fmin(c, 0.0) - reach, fmin(c, -xc));
     const double xhi = fmin(fmax(c, 0.0) + reach, fmax(c, xc));
     const double lo = fmin(xlo, 0.0) - 0.1, hi = fmax(xhi, 0.0) + 0.1;
-    Substep q = {s, c, vin, NAN, {0.0, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0}};
+    Substep q = {s, c, vin, (double)NAN, {0.0, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0}};
     int it = 0;
     const double vo = os_newton_scalar(residual, &q, guess, lo, hi, NEWTON_TOL, NEWTON_ITER, &it);
     *evals += it;

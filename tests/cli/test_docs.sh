@@ -10,6 +10,8 @@
 # Usage: test_docs.sh OUTSTAGE_EXE MAN_PAGE [GROFF]
 set -u
 exe=$1
+# Under `meson test --setup valgrind` the tool runs under memcheck (tests/valgrind/wrap.sh).
+wrap=${OS_TEST_WRAP:-}
 man=$2
 groff=${3:-}
 failures=0
@@ -18,8 +20,8 @@ fail() {
   failures=$((failures + 1))
 }
 
-help=$("$exe" --help) || fail "--help exits non-zero"
-[ "$("$exe" help | head -1)" = "$(echo "$help" | head -1)" ] || fail "'help' differs from --help"
+help=$($wrap "$exe" --help) || fail "--help exits non-zero"
+[ "$($wrap "$exe" help | head -1)" = "$(echo "$help" | head -1)" ] || fail "'help' differs from --help"
 options=$(echo "$help" | sed -n 's/^  --\([a-z-]*\).*/\1/p')
 [ -n "$options" ] || fail "no options in --help"
 n=0
@@ -30,7 +32,7 @@ for o in $options; do
 done
 echo "ok   $n options of --help in the man page"
 
-symbols=$("$exe" list | sed -n 's/^  \([a-z_]*\) .*/\1/p' | sort -u)
+symbols=$($wrap "$exe" list | sed -n 's/^  \([a-z_]*\) .*/\1/p' | sort -u)
 n=0
 for s in $symbols; do
   n=$((n + 1))
@@ -58,7 +60,7 @@ if [ -n "$groff" ]; then
   [ -z "$warnings" ] || fail "groff warns: $warnings"
   echo "ok   groff -man -ww: no warnings"
 fi
-"$exe" --version | grep -q "^outstage [0-9]" || fail "--version"
+$wrap "$exe" --version | grep -q "^outstage [0-9]" || fail "--version"
 
 if [ "$failures" -ne 0 ]; then
   echo "$failures failure(s)"

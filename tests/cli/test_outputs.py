@@ -39,6 +39,8 @@ import tempfile
 import threading
 
 EXE = os.path.abspath(sys.argv[1])
+# Under `meson test --setup valgrind` the tool runs under memcheck (tests/valgrind/wrap.sh).
+WRAP = os.environ.get("OS_TEST_WRAP", "").split()
 failures = 0
 
 
@@ -50,7 +52,8 @@ def check(ok, what):
 
 
 def run(*args, stdin=None):
-    p = subprocess.run([EXE, *args], capture_output=True, text=True, stdin=stdin, timeout=300)
+    p = subprocess.run([*WRAP, EXE, *args], capture_output=True, text=True, stdin=stdin,
+                       timeout=600)
     return p.returncode, p.stdout, p.stderr
 
 
@@ -210,8 +213,8 @@ os.remove("piped.wav")
 # system's /dev/stdout): written in place through the link; the summary line
 # goes to stderr, not into the audio.
 os.symlink("/proc/self/fd/1", "stdout")
-p = subprocess.run([EXE, "render", "opamp", "in.wav", "stdout", "--quiet"], capture_output=True,
-                   timeout=300)
+p = subprocess.run([*WRAP, EXE, "render", "opamp", "in.wav", "stdout", "--quiet"],
+                   capture_output=True, timeout=600)
 with open("piped.wav", "wb") as f:
     f.write(p.stdout)
 check(p.returncode == 0 and container("piped.wav") == "wav" and wav_info("piped.wav")[3] == 4800,
@@ -278,13 +281,13 @@ def small_files():
 
 
 before = listing()
-p = subprocess.run([EXE, "render", "opamp", "in.wav", "big.wav", "--quiet"], capture_output=True,
-                   text=True, preexec_fn=small_files, timeout=300)
+p = subprocess.run([*WRAP, EXE, "render", "opamp", "in.wav", "big.wav", "--quiet"],
+                   capture_output=True, text=True, preexec_fn=small_files, timeout=600)
 check(p.returncode == 1 and "big.wav" in p.stderr and listing() == before,
       "past the file size limit: exit %d, nothing left: %s" % (p.returncode, p.stderr.strip()))
 os.mkfifo("gone")
 quit_early = subprocess.Popen(["head", "-c", "100", "gone"], stdout=subprocess.DEVNULL)
-pcm16_wav("long.wav", 480000)
+pcm16_wav("long.wav", 96000)  # the spool goes out at the end, past the 100 bytes read
 rc, _, err = run("render", "opamp", "long.wav", "gone", "--quiet")
 try:
     quit_early.wait(20)

@@ -40,6 +40,8 @@ except ImportError:
     sys.exit(77)
 
 EXE = sys.argv[1]
+# Under `meson test --setup valgrind` the tool runs under memcheck (tests/valgrind/wrap.sh).
+WRAP = os.environ.get("OS_TEST_WRAP", "").split()
 failures = []
 
 
@@ -54,7 +56,7 @@ def close(a, b, rel, absolute=0.0):
 
 
 def run(*args):
-    r = subprocess.run([EXE, *args], capture_output=True, text=True, check=False)
+    r = subprocess.run([*WRAP, EXE, *args], capture_output=True, text=True, check=False)
     if r.returncode != 0:
         raise SystemExit(f"outstage {' '.join(args)} failed: {r.stderr.strip()}")
     return r.stdout

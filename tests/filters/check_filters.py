@@ -41,6 +41,7 @@ Usage: check_filters.py DUMP_FILTERS_EXECUTABLE. Exit status 77 (meson: skip)
 when numpy or scipy is missing (Debian: python3-numpy, python3-scipy).
 """
 
+import os
 import subprocess
 import sys
 
@@ -71,7 +72,9 @@ def check(ok, what):
 
 
 def read_dump(path):
-    out = subprocess.run([path], check=True, capture_output=True, text=True).stdout
+    # Under `meson test --setup valgrind` it runs under memcheck (tests/valgrind/wrap.sh).
+    wrap = os.environ.get("OS_TEST_WRAP", "").split()
+    out = subprocess.run([*wrap, path], check=True, stdout=subprocess.PIPE, text=True).stdout
     stages, factors, info = {}, {}, {}
     for line in out.splitlines():
         f = line.split()

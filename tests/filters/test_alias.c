@@ -26,7 +26,9 @@
  * -77.6 dBc, are not: they are held where they are). The other rows keep what
  * has been reached from slipping back; tighten a row when the DSP gets better.
  * The meter itself is checked first on a signal whose every component is
- * known. */
+ * known. OS_TEST_SHORT=1 (the valgrind setup) keeps the meter check and the
+ * rows at 1x: the meter's code is the same at every factor, and the stage's
+ * code at the other factors runs under memcheck in the dsp suite. */
 
 #include <setjmp.h>
 #include <stdarg.h>
@@ -172,10 +174,18 @@ int main(void)
 {
     struct CMUnitTest tests[N_ROWS + 1];
     static char names[N_ROWS][64];
-    tests[0] = (struct CMUnitTest){"meter_known_answer", meter_known_answer, NULL, NULL, NULL};
+    const int short_mode = getenv("OS_TEST_SHORT") != NULL;
+    size_t n = 0;
+    tests[n++] = (struct CMUnitTest){"meter_known_answer", meter_known_answer, NULL, NULL, NULL};
     for (size_t i = 0; i < N_ROWS; ++i) {
+        if (short_mode && rows[i].factor != 1) {
+            continue;
+        }
         snprintf(names[i], sizeof(names[i]), "%s_x%d", rows[i].tone, rows[i].factor);
-        tests[i + 1] = (struct CMUnitTest){names[i], alias_row, NULL, NULL, (void *)&rows[i]};
+        tests[n++] = (struct CMUnitTest){names[i], alias_row, NULL, NULL, (void *)&rows[i]};
     }
-    return _cmocka_run_group_tests("alias", tests, N_ROWS + 1, NULL, NULL);
+    if (short_mode) {
+        printf("OS_TEST_SHORT: the meter check and the rows at 1x\n");
+    }
+    return _cmocka_run_group_tests("alias", tests, n, NULL, NULL);
 }

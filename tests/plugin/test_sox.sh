@@ -44,12 +44,16 @@ gen() {
     "$SOX" -n -r $RATE -c 1 -b 32 -e floating-point "$TMP/$1.wav" synth 2 sine 1000 vol "$2"
 }
 
+# Under `meson test --setup valgrind` sox runs the plugin under memcheck
+# (tests/valgrind/wrap.sh).
+wrap=${OS_TEST_WRAP:-}
+
 # run IN OUT CONTROL...: the plugin through sox's ladspa effect
 run() {
     in=$1
     out=$2
     shift 2
-    LADSPA_PATH=$LADSPA_DIR "$SOX" "$TMP/$in.wav" -b 32 -e floating-point "$TMP/$out.wav" \
+    LADSPA_PATH=$LADSPA_DIR $wrap "$SOX" "$TMP/$in.wav" -b 32 -e floating-point "$TMP/$out.wav" \
         ladspa outstage outstage_opamp "$@"
 }
 
