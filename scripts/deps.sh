@@ -11,6 +11,7 @@ packages=(
   lv2-dev liblilv-dev lilv-utils ladspa-sdk
   libcmocka-dev ngspice sox sordi serdi clang-format clang-tidy cppcheck
   libsndfile1-dev libfftw3-dev libcairo2-dev python3-numpy python3-scipy groff-base
+  valgrind clang libclang-rt-14-dev
 )
 
 missing=()

@@ -3,8 +3,9 @@
 # SPDX-License-Identifier: ISC
 #
 # Every test: installs what is missing, builds with warnings as errors, runs the
-# whole suite, then the DSP and plugin suites again under AddressSanitizer and
-# UndefinedBehaviorSanitizer, and checks the formatting.
+# whole suite, then the DSP, plugin and command-line suites again under
+# AddressSanitizer and UndefinedBehaviorSanitizer, the suite under valgrind's
+# memcheck, the fuzzers for a bounded time, and checks the formatting and lint.
 set -euo pipefail
 cd "$(dirname "$0")/.."
 
@@ -29,9 +30,14 @@ echo "== sanitizers (address, undefined)"
 configure build-sanitize -Dbuildtype=debug -Dwerror=true -Db_sanitize=address,undefined \
   -Db_lundef=false
 ninja -C build-sanitize
-UBSAN_OPTIONS=halt_on_error=1:print_stacktrace=1 ASAN_OPTIONS=detect_leaks=1 \
+# OS_TEST_SHORT: the heaviest tests on less material, the same checks (the
+# release run above has them whole; docs/testing.md, "Under valgrind").
+OS_TEST_SHORT=1 UBSAN_OPTIONS=halt_on_error=1:print_stacktrace=1 ASAN_OPTIONS=detect_leaks=1 \
   meson test -C build-sanitize --print-errorlogs --num-processes 2 --suite dsp --suite plugin \
   --suite cli
+
+echo "== valgrind (memcheck)"
+bash scripts/valgrind.sh
 
 echo "== clang-format"
 find analysis bench cli dsp plugins tests tools -name '*.[ch]' -print0 | xargs -0 clang-format --dry-run --Werror
