@@ -45,11 +45,11 @@ typedef enum {
 typedef struct {
     const char *name;
     const char *arg; /* NULL: a flag */
-    unsigned commands;
     const char *help;
     /* a number's range (lo < hi), and whether it must be whole; the same rule
      * wherever the option appears */
     double lo, hi;
+    unsigned commands;
     int whole;
 } Option;
 
@@ -59,50 +59,51 @@ typedef struct {
 #define LEVEL_HI 60.0
 
 static const Option options[] = {
-    [O_SET] = {"set", "SYMBOL=VALUE", R | M | P,
+    [O_SET] = {"set", "SYMBOL=VALUE",
                "set a control by its port symbol (repeatable; after any preset); see "
                "'outstage list'",
-               0, 0, 0},
-    [O_PRESET] = {"preset", "NAME", R | M | P,
-                  "start from one of our designs (see 'outstage list')", 0, 0, 0},
-    [O_REPORT] = {"report", "FILE.json", R,
-                  "write the meters of every channel and the output's clipping as JSON", 0, 0, 0},
-    [O_COMPENSATE] = {"compensate", NULL, R,
+               0, 0, R | M | P, 0},
+    [O_PRESET] = {"preset", "NAME", "start from one of our designs (see 'outstage list')", 0, 0,
+                  R | M | P, 0},
+    [O_REPORT] = {"report", "FILE.json",
+                  "write the meters of every channel and the output's clipping as JSON", 0, 0, R,
+                  0},
+    [O_COMPENSATE] = {"compensate", NULL,
                       "align the output with the input, as long (the default; kept for scripts)", 0,
-                      0, 0},
-    [O_STREAM] = {"stream", NULL, R,
+                      0, R, 0},
+    [O_STREAM] = {"stream", NULL,
                   "write the plugin's own stream instead: the latency kept at the start, the "
                   "length the input's, the tail cut (equals the LV2 plugin's output)",
-                  0, 0, 0},
-    [O_FORCE] = {"force", NULL, R | M | P | D,
-                 "replace outputs that are write-protected (mode 444 and the like)", 0, 0, 0},
-    [O_QUIET] = {"quiet", NULL, R, "no progress bar", 0, 0, 0},
-    [O_FREQ] = {"freq", "HZ", M | P,
+                  0, 0, R, 0},
+    [O_FORCE] = {"force", NULL, "replace outputs that are write-protected (mode 444 and the like)",
+                 0, 0, R | M | P | D, 0},
+    [O_QUIET] = {"quiet", NULL, "no progress bar", 0, 0, R, 0},
+    [O_FREQ] = {"freq", "HZ",
                 "sine frequency (default 1000), moved to the nearest one with whole cycles in "
                 "the record; below 0.45 x the rate",
-                1.0, 0.45 * OS_RATE_MAX, 0},
-    [O_RATE] = {"rate", "HZ", M | P, "sample rate of the simulation (default 48000)", OS_RATE_MIN,
-                OS_RATE_MAX, 1},
-    [O_FROM] = {"from", "DBFS", M | P, "lowest sweep level (default: 48 dB below the top)",
-                LEVEL_LO, LEVEL_HI, 0},
-    [O_TO] = {"to", "DBFS", M | P,
+                1.0, 0.45 * OS_RATE_MAX, M | P, 0},
+    [O_RATE] = {"rate", "HZ", "sample rate of the simulation (default 48000)", OS_RATE_MIN,
+                OS_RATE_MAX, M | P, 1},
+    [O_FROM] = {"from", "DBFS", "lowest sweep level (default: 48 dB below the top)", LEVEL_LO,
+                LEVEL_HI, M | P, 0},
+    [O_TO] = {"to", "DBFS",
               "highest sweep level (default: 6 dB above where the stage should reach its limit)",
-              LEVEL_LO, LEVEL_HI, 0},
-    [O_STEP] = {"step", "DB", M | P, "sweep step (default 1)", 0.01, 60.0, 0},
-    [O_LEVEL] = {"level", "DBFS", P,
+              LEVEL_LO, LEVEL_HI, M | P, 0},
+    [O_STEP] = {"step", "DB", "sweep step (default 1)", 0.01, 60.0, M | P, 0},
+    [O_LEVEL] = {"level", "DBFS",
                  "sine level for transfer and spectrum (default: 6 dB above, resp. 3 dB below, "
                  "where the stage should reach its limit)",
-                 LEVEL_LO, LEVEL_HI, 0},
-    [O_JSON] = {"json", NULL, M, "print one JSON object instead of the table", 0, 0, 0},
-    [O_CSV] = {"csv", NULL, M, "print CSV instead of the table", 0, 0, 0},
-    [O_WAV] = {"wav", "FILE.wav", M,
+                 LEVEL_LO, LEVEL_HI, P, 0},
+    [O_JSON] = {"json", NULL, "print one JSON object instead of the table", 0, 0, M, 0},
+    [O_CSV] = {"csv", NULL, "print CSV instead of the table", 0, 0, M, 0},
+    [O_WAV] = {"wav", "FILE.wav",
                "also write each level's analysed record, one after another, as 32-bit float "
                "(WAV, or the container the name's extension asks for)",
-               0, 0, 0},
-    [O_SECONDS] = {"seconds", "S", D, "length of the demo material (default 8)", 3.0, 600.0, 0},
-    [O_JOBS] = {"jobs", "N", D, "worker threads (default: one per processor)", 1.0, 64.0, 1},
-    [O_HELP] = {"help", NULL, R | M | P | D, "this text", 0, 0, 0},
-    [O_VERSION] = {"version", NULL, R | M | P | D, "the version", 0, 0, 0},
+               0, 0, M, 0},
+    [O_SECONDS] = {"seconds", "S", "length of the demo material (default 8)", 3.0, 600.0, D, 0},
+    [O_JOBS] = {"jobs", "N", "worker threads (default: one per processor)", 1.0, 64.0, D, 1},
+    [O_HELP] = {"help", NULL, "this text", 0, 0, R | M | P | D, 0},
+    [O_VERSION] = {"version", NULL, "the version", 0, 0, R | M | P | D, 0},
 };
 
 #define N_OPTIONS (sizeof(options) / sizeof(options[0]))
