@@ -96,6 +96,13 @@ void cli_audio_format_name(int format, char *buf, size_t len)
     snprintf(buf, len, "%s, %s", ok_major ? major.name : "?", ok_sub ? sub.name : "?");
 }
 
+int cli_audio_empty_ok(int format)
+{
+    const int major = format & SF_FORMAT_TYPEMASK;
+    return major != SF_FORMAT_FLAC && major != SF_FORMAT_MPEG &&
+           (format & SF_FORMAT_SUBMASK) != SF_FORMAT_OPUS;
+}
+
 int cli_audio_format_for(const char *path, int base, int channels, int rate, int *format, char *err,
                          size_t len)
 {
@@ -156,6 +163,10 @@ int cli_write_audio(const char *path, const float *x, size_t frames, int channel
 {
     int chosen;
     if (cli_audio_format_for(path, format, channels, rate, &chosen, err, len) != 0) {
+        return -1;
+    }
+    if (frames == 0 && !cli_audio_empty_ok(chosen)) {
+        cli_err(err, len, "%s: an empty file of this format cannot be written", path);
         return -1;
     }
     CliAtomic a;

@@ -31,6 +31,11 @@ int cli_audio_ext_check(const char *path, char *err, size_t len);
 /** The format's name, e.g. "WAV (Microsoft), 32 bit float". */
 void cli_audio_format_name(int format, char *buf, size_t len);
 
+/** Whether libsndfile writes a file of this format that reads back when it
+ *  holds no frames (its FLAC and MPEG writers put out nothing at
+ *  all, its Opus writer a stream that does not decode). */
+int cli_audio_empty_ok(int format);
+
 /**
  * Write @p frames interleaved frames of @p channels channels at @p rate Hz to
  * @p path, in the container its name asks for (cli_audio_format_for(), from

@@ -373,6 +373,15 @@ int cli_render(const CliRenderJob *job, CliRenderResult *res, char *err, size_t 
     copy_channel_map(w.in, w.out, info.channels);
 
     int rc = run(job, &w, res, info.frames, err, len);
+    if (rc == 0 && res->frames == 0 && !cli_audio_empty_ok(oformat)) {
+        /* libsndfile writes these headers with the first frames: no frames,
+         * no header, a file nothing reads (found by fuzz/fuzz_cli.c). */
+        cli_err(err, len,
+                "%s: the input holds no frames, and an empty %s cannot be written (a WAV, AIFF or "
+                "CAF can)",
+                job->out_path, res->format_name);
+        rc = -1;
+    }
     if (rc == 0) {
         sf_write_sync(w.out);
         if (sf_close(w.out) != 0) {

@@ -314,6 +314,19 @@ for ext, want in [("aif", "aiff"), ("aiff", "aiff"), ("flac", "flac"), ("ogg", "
     got = container("x." + ext) if rc == 0 else "exit %d: %s" % (rc, err.strip())
     check(got == want, "x.%s is %s: %s" % (ext, want, got))
 refused(2, "unknown audio extension", "render", "opamp", "in.wav", "x.txt")
+# An input of no frames (found by fuzz/fuzz_cli.c): libsndfile writes FLAC and
+# MP3 headers with the first frames and an Opus stream that does not decode, so
+# those are refused and nothing is left; the containers that can be empty are
+# written empty and read back (checked here by the tool reading its own output).
+pcm16_wav("empty.wav", 0)
+for ext in ["flac", "mp3", "opus"]:
+    refused(1, "holds no frames", "render", "opamp", "empty.wav", "e." + ext, "--quiet")
+for ext in ["wav", "aiff", "caf", "w64", "ogg"]:
+    rc, _, err = run("render", "opamp", "empty.wav", "e." + ext, "--quiet")
+    rc2, _, err2 = run("render", "opamp", "e." + ext, "back.wav", "--quiet")
+    check(rc == 0 and rc2 == 0 and wav_info("back.wav")[3] == 0,
+          "an empty input into e.%s: exit %d, read back: exit %d %s" % (ext, rc, rc2,
+                                                                      (err + err2).strip()))
 rc, _, err = run("measure", "opamp", "--from", "-10", "--to", "-10", "--wav", "m.flac")
 check(rc == 0 and container("m.flac") == "flac", "measure --wav m.flac writes FLAC")
 refused(2, "unknown audio extension", "measure", "opamp", "--wav", "m.txt")
