@@ -152,7 +152,7 @@ int bench_fold(const BenchOptions *o)
             /* the harmonics above the circuit's Nyquist frequency that land on the
              * bin, up to an eighth of the lower reference rate; the largest counts */
             uint64_t best_k = 0;
-            double best[2] = {-INFINITY, -INFINITY};
+            double best[2] = {-HUGE_VAL, -HUGE_VAL};
             for (uint64_t k = 2; k * f0 < refs[0] / 8; ++k) {
                 if (fold(k * f0, inner) != bin || k * f0 < inner / 2) {
                     continue;

@@ -90,7 +90,7 @@ typedef struct {
 static float sweep_value(const Sweep *sw, double t)
 {
     const double ph = fmod(t, 2.0), u = ph < 1.0 ? ph : 2.0 - ph;
-    const double lo = sw->port->min, hi = sw->port->max;
+    const double lo = (double)sw->port->min, hi = (double)sw->port->max;
     if (sw->port->flags & OS_PF_LOGARITHMIC) {
         return (float)(lo * pow(hi / lo, u));
     }
@@ -224,7 +224,7 @@ static double zipper_dbc(OsStageKind kind, double rate, int factor, const float 
         os_stage_free(s);
         fftw_free(d);
         fftw_free(spec);
-        return NAN;
+        return (double)NAN;
     }
     os_stage_set(s, OS_P_OVERSAMPLE, (float)factor);
     os_stage_set(s, (OsParam)sw->port->id, sweep_value(sw, 0.0));
