@@ -39,8 +39,11 @@ OS_TEST_SHORT=1 UBSAN_OPTIONS=halt_on_error=1:print_stacktrace=1 ASAN_OPTIONS=de
 echo "== valgrind (memcheck)"
 bash scripts/valgrind.sh
 
+echo "== fuzzing (bounded; docs/fuzzing.md)"
+bash scripts/fuzz.sh
+
 echo "== clang-format"
-find analysis bench cli dsp plugins tests tools -name '*.[ch]' -print0 | xargs -0 clang-format --dry-run --Werror
+find analysis bench cli dsp fuzz plugins tests tools -name '*.[ch]' -print0 | xargs -0 clang-format --dry-run --Werror
 
 echo "== lint (cppcheck, clang-tidy)"
 bash scripts/lint.sh build
