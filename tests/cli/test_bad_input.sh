@@ -65,10 +65,17 @@ cp "$t/in.wav" "$t/locked.wav" && chmod 000 "$t/locked.wav"
 if [ "$(id -u)" -ne 0 ]; then
   expect 1 "$t/locked.wav" -- render opamp "$t/locked.wav" "$t/out.wav"
 elif command -v setpriv >/dev/null 2>&1; then
-  # root reads any file: run this case as the unprivileged user nobody.
+  # root reads any file: run this case as the unprivileged user nobody, where
+  # nobody can run the tool (under valgrind it must read it too, which a
+  # checkout in a folder closed to others, such as one made by mktemp -d,
+  # does not allow).
   chmod 777 "$t"
   as_user="setpriv --reuid=65534 --regid=65534 --clear-groups"
-  expect 1 "$t/locked.wav: cannot read" -- render opamp "$t/locked.wav" "$t/out.wav"
+  if $as_user $wrap "$exe" --version >/dev/null 2>&1; then
+    expect 1 "$t/locked.wav: cannot read" -- render opamp "$t/locked.wav" "$t/out.wav"
+  else
+    echo "note: the user nobody cannot run $exe here (a folder above it is closed to others); the unreadable input is the folder above"
+  fi
   as_user=""
   chmod 700 "$t"
 else
