@@ -229,8 +229,9 @@ OsStage *cli_stage_new(const CliSettings *s, double rate, char *err, size_t len)
     OsStage *stage = os_stage_new(s->kind, rate, &status);
     if (stage == NULL) {
         if (status == OS_ERR_SAMPLE_RATE) {
-            cli_err(err, len, "sample rate %g Hz is outside the %g to %g Hz the stage runs at",
-                    rate, OS_RATE_MIN, OS_RATE_MAX);
+            cli_err(err, len,
+                    "sample rate %.15g Hz is outside the %.15g to %.15g Hz the stage runs at", rate,
+                    OS_RATE_MIN, OS_RATE_MAX);
         } else {
             cli_err(err, len, "cannot create the %s stage: %s", cli_stage_name(s->kind),
                     os_strerror(status));
