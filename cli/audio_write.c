@@ -31,6 +31,15 @@ static const struct {
     {"au", SF_FORMAT_AU, 0},
     {"snd", SF_FORMAT_AU, 0},
     {"mp3", SF_FORMAT_MPEG, SF_FORMAT_MPEG_LAYER_III},
+    /* older sample and speech formats libsndfile writes */
+    {"voc", SF_FORMAT_VOC, 0},
+    {"8svx", SF_FORMAT_SVX, 0},
+    {"svx", SF_FORMAT_SVX, 0},
+    {"iff", SF_FORMAT_SVX, 0},
+    {"nist", SF_FORMAT_NIST, 0},
+    {"sph", SF_FORMAT_NIST, 0},
+    {"paf", SF_FORMAT_PAF, 0},
+    {"avr", SF_FORMAT_AVR, 0},
 };
 
 #define N_CONTAINERS (sizeof(containers) / sizeof(containers[0]))

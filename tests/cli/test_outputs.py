@@ -128,6 +128,19 @@ def container(path):
         return "au"
     if d[:3] == b"ID3" or (d[0] == 0xFF and (d[1] & 0xE0) == 0xE0):
         return "mp3"
+    # the older formats' magic numbers, as their specifications give them
+    # (from memory: Creative's VOC header text, IFF's FORM with 8SVX or 16SV,
+    # NIST SPHERE's NIST_1A, Ensoniq PAF's " paf"/"fap ", AVR's "2BIT")
+    if d[:20] == b"Creative Voice File\x1a":
+        return "voc"
+    if d[:4] == b"FORM" and d[8:12] in (b"8SVX", b"16SV"):
+        return "svx"
+    if d[:8] == b"NIST_1A\n":
+        return "nist"
+    if d[:4] in (b" paf", b"fap "):
+        return "paf"
+    if d[:4] == b"2BIT":
+        return "avr"
     return "unknown"
 
 
@@ -309,11 +322,16 @@ for mask, ch in [(0x63F, 8), (0x60F, 6)]:
 # 5. The container from the extension.
 for ext, want in [("aif", "aiff"), ("aiff", "aiff"), ("flac", "flac"), ("ogg", "vorbis"),
                   ("opus", "opus"), ("caf", "caf"), ("w64", "w64"), ("rf64", "rf64"),
-                  ("au", "au"), ("mp3", "mp3"), ("WAV", "wav")]:
+                  ("au", "au"), ("mp3", "mp3"), ("WAV", "wav"), ("voc", "voc"), ("nist", "nist"),
+                  ("sph", "nist"), ("paf", "paf"), ("avr", "avr"), ("8svx", "svx"), ("svx", "svx"),
+                  ("iff", "svx")]:
     rc, _, err = run("render", "opamp", "in.wav", "x." + ext, "--quiet")
     got = container("x." + ext) if rc == 0 else "exit %d: %s" % (rc, err.strip())
     check(got == want, "x.%s is %s: %s" % (ext, want, got))
 refused(2, "unknown audio extension", "render", "opamp", "in.wav", "x.txt")
+# IFF 8SVX holds one channel (libsndfile's format check): a stereo file is refused.
+pcm16_wav("stereo.wav", 480, channels=2)
+refused(1, "cannot write IFF", "render", "opamp", "stereo.wav", "x2.8svx")
 # An input of no frames (found by fuzz/fuzz_cli.c): libsndfile writes FLAC and
 # MP3 headers with the first frames and an Opus stream that does not decode, so
 # those are refused and nothing is left; the containers that can be empty are
@@ -321,7 +339,7 @@ refused(2, "unknown audio extension", "render", "opamp", "in.wav", "x.txt")
 pcm16_wav("empty.wav", 0)
 for ext in ["flac", "mp3", "opus"]:
     refused(1, "holds no frames", "render", "opamp", "empty.wav", "e." + ext, "--quiet")
-for ext in ["wav", "aiff", "caf", "w64", "ogg"]:
+for ext in ["wav", "aiff", "caf", "w64", "ogg", "voc", "nist", "paf", "avr"]:
     rc, _, err = run("render", "opamp", "empty.wav", "e." + ext, "--quiet")
     rc2, _, err2 = run("render", "opamp", "e." + ext, "back.wav", "--quiet")
     check(rc == 0 and rc2 == 0 and wav_info("back.wav")[3] == 0,
