@@ -49,6 +49,8 @@ trap 'rm -rf "$work"' EXIT
 export FUZZ_TMPDIR="$work"
 export UBSAN_OPTIONS=halt_on_error=1:print_stacktrace=1
 export ASAN_OPTIONS=detect_leaks=1
+# leaks inside system libraries, each explained there
+export LSAN_OPTIONS="suppressions=$PWD/fuzz/lsan.supp"
 
 keep() { # harness, files...: copy what found something where it outlives $work
   local h=$1
