@@ -79,23 +79,29 @@ static const char *const out_exts[] = {"wav", "aiff", "flac", "au",  "caf", "w64
 
 static char dir[PATH_LEN];
 
+static void empty_dir(void)
+{
+    DIR *d = opendir(dir);
+    if (d == NULL) {
+        return;
+    }
+    struct dirent *e;
+    while ((e = readdir(d)) != NULL) {
+        if (strcmp(e->d_name, ".") != 0 && strcmp(e->d_name, "..") != 0) {
+            char p[PATH_LEN * 2];
+            snprintf(p, sizeof(p), "%s/%s", dir, e->d_name);
+            unlink(p);
+        }
+    }
+    closedir(d);
+}
+
 static void remove_dir(void)
 {
     if (dir[0] == '\0') {
         return;
     }
-    DIR *d = opendir(dir);
-    if (d) {
-        struct dirent *e;
-        while ((e = readdir(d)) != NULL) {
-            if (strcmp(e->d_name, ".") != 0 && strcmp(e->d_name, "..") != 0) {
-                char p[PATH_LEN * 2];
-                snprintf(p, sizeof(p), "%s/%s", dir, e->d_name);
-                unlink(p);
-            }
-        }
-        closedir(d);
-    }
+    empty_dir();
     rmdir(dir);
     dir[0] = '\0';
 }
@@ -477,23 +483,6 @@ static int strays(const char *const *keep, int n, char *first, size_t len)
     }
     closedir(d);
     return count;
-}
-
-static void empty_dir(void)
-{
-    DIR *d = opendir(dir);
-    if (d == NULL) {
-        return;
-    }
-    struct dirent *e;
-    while ((e = readdir(d)) != NULL) {
-        if (strcmp(e->d_name, ".") != 0 && strcmp(e->d_name, "..") != 0) {
-            char p[PATH_LEN * 2];
-            snprintf(p, sizeof(p), "%s/%s", dir, e->d_name);
-            unlink(p);
-        }
-    }
-    closedir(d);
 }
 
 /* What the harness itself decodes of the input, to bound the work and to
