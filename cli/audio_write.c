@@ -8,8 +8,11 @@
 
 #include <sndfile.h>
 
+#include <errno.h>
+#include <stdint.h>
 #include <stdio.h>
 #include <string.h>
+#include <unistd.h>
 
 /* Extensions and the container each names (the encodings Ogg holds are told
  * apart by extension). */
@@ -103,6 +106,69 @@ void cli_audio_format_name(int format, char *buf, size_t len)
     const int ok_major = sf_command(NULL, SFC_GET_FORMAT_INFO, &major, sizeof(major)) == 0;
     const int ok_sub = sf_command(NULL, SFC_GET_FORMAT_INFO, &sub, sizeof(sub)) == 0;
     snprintf(buf, len, "%s, %s", ok_major ? major.name : "?", ok_sub ? sub.name : "?");
+}
+
+/* Big-endian 32-bit fields of an IFF chunk header. */
+static uint32_t be32(const unsigned char *b)
+{
+    return (uint32_t)b[0] << 24 | (uint32_t)b[1] << 16 | (uint32_t)b[2] << 8 | (uint32_t)b[3];
+}
+
+static void put_be32(unsigned char *b, uint32_t v)
+{
+    b[0] = (unsigned char)(v >> 24);
+    b[1] = (unsigned char)(v >> 16);
+    b[2] = (unsigned char)(v >> 8);
+    b[3] = (unsigned char)v;
+}
+
+int cli_audio_fix_aiff_pad(int fd, int format, long long frames, int channels)
+{
+    const int major = format & SF_FORMAT_TYPEMASK, sub = format & SF_FORMAT_SUBMASK;
+    const int one_byte = sub == SF_FORMAT_PCM_S8 || sub == SF_FORMAT_PCM_U8 ||
+                         sub == SF_FORMAT_ULAW || sub == SF_FORMAT_ALAW;
+    const long long bytes = frames * channels;
+    if (major != SF_FORMAT_AIFF || !one_byte || bytes % 2 == 0 || bytes > 0x7ffffff0LL) {
+        return 0;
+    }
+    /* FORM header, then chunks: COMM (numChannels, numSampleFrames, ...) and
+     * SSND (offset, blockSize, the samples); the pad byte after an odd chunk
+     * counts in FORM's size and not in the chunk's (EA IFF 85; Apple, "Audio
+     * Interchange File Format" 1.3, 1989; both from memory). */
+    unsigned char h[12];
+    if (pread(fd, h, 12, 0) != 12 || memcmp(h, "FORM", 4) != 0) {
+        return 0;
+    }
+    const off_t end = (off_t)be32(h + 4) + 8;
+    off_t at = 12, comm = -1, ssnd = -1;
+    uint32_t comm_frames = 0, ssnd_size = 0;
+    while (at + 8 <= end) {
+        unsigned char c[14];
+        if (pread(fd, c, 14, at) < 8) {
+            return 0;
+        }
+        const uint32_t size = be32(c + 4);
+        if (memcmp(c, "COMM", 4) == 0 && size >= 6) {
+            comm = at;
+            comm_frames = be32(c + 10);
+        } else if (memcmp(c, "SSND", 4) == 0) {
+            ssnd = at;
+            ssnd_size = size;
+        }
+        at += 8 + (off_t)size + (off_t)(size & 1);
+    }
+    const uint32_t want = (uint32_t)(8 + bytes);
+    if (comm < 0 || ssnd < 0 || ssnd_size != want + 1 ||
+        comm_frames != (uint32_t)(frames + (channels == 1))) {
+        return 0; /* not the miscount this mends */
+    }
+    unsigned char b[4];
+    put_be32(b, want);
+    if (pwrite(fd, b, 4, ssnd + 4) != 4) {
+        return -1;
+    }
+    put_be32(b, (uint32_t)frames);
+    return pwrite(fd, b, 4, comm + 10) == 4 ? 1 : -1;
 }
 
 int cli_audio_empty_ok(int format)
@@ -201,6 +267,11 @@ int cli_write_audio(const char *path, const float *x, size_t frames, int channel
     }
     if (sf_close(f) != 0 && !bad) {
         cli_err(err, len, "%s: cannot write", path);
+        bad = 1;
+    }
+    if (!bad && (a.tmp || a.spooled) &&
+        cli_audio_fix_aiff_pad(a.fd, chosen, (long long)frames, channels) < 0) {
+        cli_err(err, len, "%s: cannot write: %s", path, strerror(errno));
         bad = 1;
     }
     if (bad) {

@@ -31,6 +31,16 @@ int cli_audio_ext_check(const char *path, char *err, size_t len);
 /** The format's name, e.g. "WAV (Microsoft), 32 bit float". */
 void cli_audio_format_name(int format, char *buf, size_t len);
 
+/** Mend the header of an AIFF file libsndfile 1.2.0 has just written on
+ *  @p fd (closed by libsndfile, still open here) with @p frames frames of
+ *  @p channels channels in a one-byte encoding (8-bit PCM, u-law, A-law) when
+ *  the samples are an odd number of bytes: it counts the chunk's pad byte in
+ *  the SSND chunk's size and, for one channel, as one more frame, which reads
+ *  back as an extra last sample (a u-law 0 byte: -0.98 of full scale, a
+ *  click). Changes nothing in any other file. Returns 1 when mended, 0 when
+ *  there was nothing to mend, -1 on a write error (errno set). */
+int cli_audio_fix_aiff_pad(int fd, int format, long long frames, int channels);
+
 /** Whether libsndfile writes a file of this format that reads back when it
  *  holds no frames (its FLAC and MPEG writers put out nothing at
  *  all, its Opus writer a stream that does not decode). */

@@ -389,6 +389,11 @@ int cli_render(const CliRenderJob *job, CliRenderResult *res, char *err, size_t 
             rc = -1;
         }
         w.out = NULL;
+        if (rc == 0 && (out.tmp || out.spooled) &&
+            cli_audio_fix_aiff_pad(out.fd, oformat, (long long)res->frames, info.channels) < 0) {
+            cli_err(err, len, "%s: cannot write: %s", job->out_path, strerror(errno));
+            rc = -1;
+        }
     }
     if (rc == 0 && job->report_path) {
         rc = write_report(job, res, &rep, err, len);

@@ -345,6 +345,44 @@ for ext in ["wav", "aiff", "caf", "w64", "ogg", "voc", "nist", "paf", "avr"]:
     check(rc == 0 and rc2 == 0 and wav_info("back.wav")[3] == 0,
           "an empty input into e.%s: exit %d, read back: exit %d %s" % (ext, rc, rc2,
                                                                       (err + err2).strip()))
+# AIFF in a one-byte encoding with an odd number of sample bytes (found by
+# fuzz/fuzz_cli.c): libsndfile 1.2.0 counted the chunk's pad byte in the SSND
+# chunk's size and, for one channel, as one more frame, which read back as an
+# extra last sample (a u-law 0 byte: -0.98 of full scale). The IFF rule (EA
+# IFF 85, Apple's AIFF 1.3; from memory): a chunk's size excludes its pad
+# byte, the FORM's size includes it; COMM holds the number of frames.
+def ulaw_wav(path, frames, channels, tag):
+    data = bytes([0x9F]) * (frames * channels)
+    fmt = struct.pack("<HHIIHHH", tag, channels, 8000, 8000 * channels, channels, 8, 0)
+    body = (b"WAVEfmt " + struct.pack("<I", len(fmt)) + fmt + b"data" +
+            struct.pack("<I", len(data)) + data + b"\0" * (len(data) & 1))
+    open(path, "wb").write(b"RIFF" + struct.pack("<I", len(body)) + body)
+
+
+def aiff_chunks(path):
+    d = open(path, "rb").read()
+    chunks, pos = {}, 12
+    while pos + 8 <= len(d):
+        cid, size = d[pos:pos + 4], struct.unpack(">I", d[pos + 4:pos + 8])[0]
+        chunks[cid] = (pos, size)
+        pos += 8 + size + (size & 1)
+    return d, chunks
+
+
+for tag, law in [(7, "u-law"), (6, "A-law")]:
+    for frames, ch in [(29, 1), (1, 1), (29, 3), (30, 1)]:
+        ulaw_wav("law.wav", frames, ch, tag)
+        rc, _, err = run("render", "opamp", "law.wav", "law.aiff", "--quiet")
+        d, c = aiff_chunks("law.aiff") if rc == 0 else (b"", {})
+        form = struct.unpack(">I", d[4:8])[0] if rc == 0 else -1
+        comm = struct.unpack(">I", d[c[b"COMM"][0] + 10:][:4])[0] if b"COMM" in c else -1
+        ssnd = c[b"SSND"][1] if b"SSND" in c else -1
+        rc2, _, _ = run("render", "opamp", "law.aiff", "back.wav", "--quiet", "--report", "r.json")
+        back = json.load(open("r.json"))["input_frames"] if rc2 == 0 else -1
+        check(rc == 0 and form == len(d) - 8 and ssnd == 8 + frames * ch and comm == frames and
+              back == frames,
+              "%s AIFF, %d frames x %d: FORM %d of %d, SSND %d (want %d), COMM %d, read back %d" %
+              (law, frames, ch, form, len(d) - 8, ssnd, 8 + frames * ch, comm, back))
 rc, _, err = run("measure", "opamp", "--from", "-10", "--to", "-10", "--wav", "m.flac")
 check(rc == 0 and container("m.flac") == "flac", "measure --wav m.flac writes FLAC")
 refused(2, "unknown audio extension", "measure", "opamp", "--wav", "m.txt")
