@@ -51,8 +51,25 @@ static const struct {
 static const int fallbacks[] = {SF_FORMAT_PCM_24, SF_FORMAT_PCM_16, SF_FORMAT_FLOAT,
                                 SF_FORMAT_VORBIS, SF_FORMAT_OPUS};
 
+/* Encodings libsndfile 1.2.0 accepts in a container but does not write
+ * right (found by fuzz/fuzz_cli.c, then by writing every container and
+ * encoding and reading it back: tests/cli/test_containers.c): VOC u-law and
+ * A-law read back with one frame more than written; PAF 24-bit pads its
+ * 10-frame blocks with stale samples and loses a file of fewer than 10
+ * frames. They count as not writable, so the nearest other encoding is
+ * chosen. */
+static int broken(int format)
+{
+    const int major = format & SF_FORMAT_TYPEMASK, sub = format & SF_FORMAT_SUBMASK;
+    return (major == SF_FORMAT_VOC && (sub == SF_FORMAT_ULAW || sub == SF_FORMAT_ALAW)) ||
+           (major == SF_FORMAT_PAF && sub == SF_FORMAT_PCM_24);
+}
+
 static int writable(int format, int channels, int rate)
 {
+    if (broken(format)) {
+        return 0;
+    }
     SF_INFO info;
     memset(&info, 0, sizeof(info));
     info.format = format;
@@ -193,14 +210,18 @@ int cli_audio_format_for(const char *path, int base, int channels, int rate, int
     if (ext[0] == '\0' || (major >= 0 && same_container(major, base) &&
                            (sub == 0 || sub == (base & SF_FORMAT_SUBMASK)))) {
         *format = base; /* no extension, or the data's own container */
-        if (!writable(base, channels, rate)) {
+        if (writable(base, channels, rate)) {
+            return 0;
+        }
+        if (!broken(base)) {
             char name[160];
             cli_audio_format_name(base, name, sizeof(name));
             cli_err(err, len, "%s: libsndfile cannot write %s with %d channels at %d Hz", path,
                     name, channels, rate);
             return -1;
         }
-        return 0;
+        major = base & SF_FORMAT_TYPEMASK; /* the same container, another encoding */
+        sub = 0;
     }
     if (major < 0) {
         return cli_audio_ext_check(path, err, len);
