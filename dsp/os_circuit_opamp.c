@@ -12,14 +12,27 @@
  * gives the scalar equation  R(x) = x - c - w f(x) = 0,  strictly increasing
  * in x because f falls with x (every term of os_opamp.h does), so a safeguarded
  * iteration (Chebyshev's, inside a shrinking bracket: solve()) always converges
- * to its unique root. */
+ * to its unique root.
+ *
+ * Into a loudspeaker (os_load.h) the load current is the voice coil's, a
+ * state of the load's own network. Within a TR-BDF2 sub-step the load is a
+ * Norton equivalent iL = G vo + J (os_load.h), so the pin still follows x
+ * affinely, vo = rho x + vo0 and io = kx x + io0 with
+ *   rho = 1 / (1 + Rs (1/(R1 + R2) + G)),  kx = (1 - rho) / Rs,
+ *   vo0 = -Rs rho J,  io0 = rho J,
+ * the same scalar equation holds with these offsets, and R still rises with
+ * slope at least 1, so the root lies within |R(x)| of any x: that bounds the
+ * bracket from the first evaluation on (the offsets void the closed-form
+ * bounds of the resistive case). The load's states then follow from vo. */
 
 #include "os_circuit.h"
 
+#include "os_load.h"
 #include "os_opamp.h"
 #include "os_solver.h"
 
 #include <math.h>
+#include <string.h>
 
 typedef struct {
     OsOpampCoeffs op;
@@ -41,6 +54,15 @@ typedef struct {
     double lim_near;   /* |io| above which the limiter's term is not negligible, A */
     double clamp_near; /* |x| above which the swing clamp's term is not negligible, V */
     double accept;     /* a third-order step this short leaves an error below the tolerance, V */
+    /* the loudspeaker (load.speaker): its network, state, and the offsets of
+     * the sub-step being solved (vd0 = vo0 / G); all zero into a resistor */
+    OsLoad load;
+    OsLoadState ls;
+    double io0, vd0, vo0;
+    /* the last evaluation's slopes: of the input pair's tanh, of the
+     * limiter's term by io, and the clamp's share of d(dx/dt)/dx, for the
+     * loop derivative at the load's instantaneous coupling */
+    double last_dt, last_dlim, last_dclamp;
 } OsOpampCircuit;
 
 static inline double min2(double a, double b)
@@ -51,6 +73,31 @@ static inline double min2(double a, double b)
 static inline double max2(double a, double b)
 {
     return a > b ? a : b;
+}
+
+/* The third-order acceptance length of update()'s comment, from kx and fb. */
+static void set_accept(OsOpampCircuit *s)
+{
+    /* A third-order step leaves an error of about K e^3 after a step e, K the
+     * largest ratio of the residual's third to first derivative: the input
+     * pair's (kin fb)^2, the clamps' (1/w)^2 and (kx / Ik)^2. A step below
+     * cbrt(tol / K) lands within the tolerance (tol = 1e-8 V, a tenth of
+     * the Newton tolerance the circuit was validated with). */
+    const double a = s->op.kin * s->fb, b = s->op.inv_w, l = s->kx * s->op.inv_ik;
+    const double k = fmax(a * a, fmax(b * b, l * l));
+    s->accept = fmin(1e-4, cbrt(1e-8 / k));
+}
+
+/* Into a loudspeaker: the pin's coupling to x for the present sub-step
+ * weight (the header's rho and kx). */
+static void couple_speaker(OsOpampCircuit *s)
+{
+    os_load_set_weight(&s->load, s->w);
+    const double rs = s->op.rs;
+    s->rho = 1.0 / (1.0 + rs * (1.0 / OS_FEEDBACK_TOTAL + s->load.g));
+    s->kx = (1.0 - s->rho) / rs;
+    s->fb = s->rho * s->inv_g;
+    set_accept(s);
 }
 
 static void update(void *c, const double *si, double h, OsUpdate how)
@@ -66,18 +113,16 @@ static void update(void *c, const double *si, double h, OsUpdate how)
     s->rho = rp * s->kx;
     s->w = os_trbdf2_weight(h);
     s->fb = s->rho * s->inv_g;
+    os_load_setup(&s->load, si, s->w);
+    s->io0 = s->vd0 = s->vo0 = 0.0;
     /* The clamp terms are exp(u) with u below OS_EXP_NEGLIGIBLE (os_opamp.h)
      * short of these: there they are exactly zero and not evaluated. */
     s->lim_near = s->op.ilim + OS_EXP_NEGLIGIBLE / s->op.inv_ik;
     s->clamp_near = s->op.vsw + OS_EXP_NEGLIGIBLE / s->op.inv_w;
-    /* A third-order step leaves an error of about K e^3 after a step e, K the
-     * largest ratio of the residual's third to first derivative: the input
-     * pair's (kin fb)^2, the clamps' (1/w)^2 and (kx / Ik)^2. A step below
-     * cbrt(tol / K) lands within the tolerance (tol = 1e-8 V, a tenth of
-     * the Newton tolerance the circuit was validated with). */
-    const double a = s->op.kin * s->fb, b = s->op.inv_w, l = s->kx * s->op.inv_ik;
-    const double k = fmax(a * a, fmax(b * b, l * l));
-    s->accept = fmin(1e-4, cbrt(1e-8 / k));
+    set_accept(s);
+    if (s->load.speaker) {
+        couple_speaker(s);
+    }
     s->cached = 0;
 }
 
@@ -85,6 +130,9 @@ static void set_step(void *c, double h)
 {
     OsOpampCircuit *s = c;
     s->w = os_trbdf2_weight(h);
+    if (s->load.speaker) {
+        couple_speaker(s);
+    }
 }
 
 static void reset(void *c)
@@ -96,12 +144,17 @@ static void reset(void *c)
     s->limit = 0.0;
     s->jac = 0.0;
     s->cached = 0;
+    os_load_reset(&s->ls);
 }
 
 static int ok(const void *c)
 {
     const OsOpampCircuit *s = c;
-    return isfinite(s->x) && isfinite(s->fx) && isfinite(s->vin);
+    int fine = isfinite(s->x) && isfinite(s->fx) && isfinite(s->vin);
+    for (int i = 0; i < 3; ++i) {
+        fine = fine && isfinite(s->ls.y[i]) && isfinite(s->ls.my[i]);
+    }
+    return fine;
 }
 
 /* E(u) = exp(u) continued linearly above OS_EXP_MAX (os_opamp.h), with its
@@ -129,15 +182,15 @@ static inline double rate_at(OsOpampCircuit *s, double x, double v, double *d1, 
 {
     const OsOpampCoeffs *op = &s->op;
     const double a = op->kin * s->fb;
-    const double u = op->kin * (v - s->fb * x);
+    const double u = op->kin * (v - s->fb * x - s->vd0);
     double dt;
     const double t = os_tanh_d(u, &dt);
     double f = op->sr * t - op->wp * x;
     double g1 = -op->sr * a * dt - op->wp;
     double g2 = -2.0 * op->sr * a * a * t * dt; /* d2 tanh/du2 = -2 t (1 - t^2) */
     *dv = op->sr * op->kin * dt;
-    double limit = 0.0;
-    const double io = s->kx * x;
+    double limit = 0.0, g1_lim = 0.0, g1_clamp = 0.0;
+    const double io = s->kx * x + s->io0;
     if (fabs(io) > s->lim_near) {
         /* only the polarity that |io| is near: the other's term is exactly 0
          * (|io| > lim_near > 0 puts it below OS_EXP_NEGLIGIBLE) */
@@ -147,6 +200,7 @@ static inline double rate_at(OsOpampCircuit *s, double x, double v, double *d1, 
         f -= op->sr * sg * e;
         g1 -= op->sr * k * d1e;
         g2 -= op->sr * k * k * sg * d2e;
+        g1_lim = op->sr * op->inv_ik * d1e; /* by io: times kx is its share of g1 */
         limit = e;
     }
     if (fabs(x) > s->clamp_near) {
@@ -156,16 +210,21 @@ static inline double rate_at(OsOpampCircuit *s, double x, double v, double *d1, 
         f -= op->sr * sg * e;
         g1 -= op->sr * op->inv_w * d1e;
         g2 -= op->sr * op->inv_w * op->inv_w * sg * d2e;
+        g1_clamp += op->sr * op->inv_w * d1e;
         const double other = (-sg * x - op->vsw) * op->inv_w;
         if (other > OS_EXP_NEGLIGIBLE) {
             /* a swing so small (under 20 knee widths) that both clamps act */
             const double e2 = exp_cont(other, &d1e, &d2e);
             f += op->sr * sg * e2;
             g1 -= op->sr * op->inv_w * d1e;
+            g1_clamp += op->sr * op->inv_w * d1e;
             g2 += op->sr * op->inv_w * op->inv_w * sg * d2e;
         }
     }
     s->limit = limit;
+    s->last_dt = dt;
+    s->last_dlim = g1_lim;
+    s->last_dclamp = g1_clamp;
     *d1 = g1;
     *d2 = g2;
     return f;
@@ -193,13 +252,27 @@ static double solve(OsOpampCircuit *s, double c, double vin, double guess, int *
     const double xc = min2(op->vsw + ln3 / op->inv_w, (op->ilim + ln3 / op->inv_ik) / s->kx);
     double lo = max2(min2(c, 0.0) - reach, min2(c, -xc));
     double hi = min2(max2(c, 0.0) + reach, max2(c, xc));
+    const int speaker = s->load.speaker;
+    if (speaker) {
+        /* The offsets void the bounds above but the swing clamp's: x within
+         * its reach or w SR of c, with room for the limiter's knee; the
+         * slope rule below tightens it from the first evaluation. A root
+         * beyond (a state far outside the circuit's reach) leaves x at the
+         * end: bounded. */
+        const double span =
+            max2(fabs(c) + reach, op->vsw + ln3 / op->inv_w) + 1.2 * OS_VSENSE + 0.1;
+        lo = -span;
+        hi = span;
+    }
     double x;
     if (s->cached) {
-        x = (c + w * (s->ef - s->efx * s->ex + s->efv * (vin - s->ev))) / (1.0 - w * s->efx);
+        /* ev holds the input less the offset of its sub-step (0 into a resistor) */
+        x = (c + w * (s->ef - s->efx * s->ex + s->efv * (vin - s->vd0 - s->ev))) /
+            (1.0 - w * s->efx);
     } else {
         const double wt = op->sr * op->kin;
-        x = (c + w * wt * vin) / (1.0 + w * (wt * s->fb + op->wp));
-        if (!(fabs(op->kin * (vin - s->fb * x)) < 0.5)) {
+        x = (c + w * wt * (vin - s->vd0)) / (1.0 + w * (wt * s->fb + op->wp));
+        if (!(fabs(op->kin * (vin - s->fb * x - s->vd0)) < 0.5)) {
             x = guess;
         }
     }
@@ -216,7 +289,7 @@ static double solve(OsOpampCircuit *s, double c, double vin, double guess, int *
         const double f = rate_at(s, x, vin, &d1, &d2, &dv);
         ++it;
         s->ex = x;
-        s->ev = vin;
+        s->ev = vin - s->vd0;
         s->ef = f;
         s->efx = d1;
         s->efv = dv;
@@ -229,6 +302,16 @@ static double solve(OsOpampCircuit *s, double c, double vin, double guess, int *
             hi = x;
         } else {
             lo = x;
+        }
+        if (speaker) {
+            /* R' >= 1: the root lies within |r| of x; twice that, so that a
+             * Newton step of slope near 1, which lands on x - r itself, stays
+             * strictly inside */
+            if (r > 0.0) {
+                lo = max2(lo, x - 2.0 * r);
+            } else {
+                hi = min2(hi, x - 2.0 * r);
+            }
         }
         const double inv_r1 = 1.0 / (1.0 - w * d1), r2 = -w * d2;
         const double newton = r * inv_r1, bend = 0.5 * newton * r2 * inv_r1;
@@ -258,9 +341,15 @@ static double solve(OsOpampCircuit *s, double c, double vin, double guess, int *
     return x;
 }
 
+static void step_speaker(OsOpampCircuit *s, double vin, double vin_g, OsStepResult *r);
+
 static void step(void *c, double vin, double vin_g, OsStepResult *r)
 {
     OsOpampCircuit *s = c;
+    if (s->load.speaker) {
+        step_speaker(s, vin, vin_g, r);
+        return;
+    }
     int iters = 0;
     /* Trapezoidal sub-step to t + g h (input vin_g there), BDF2 sub-step to t + h. */
     const double c1 = s->x + s->w * s->fx;
@@ -294,6 +383,84 @@ static void step(void *c, double vin, double vin_g, OsStepResult *r)
     r->ind_weight[0] = s->limit < 1.0 ? 1.0 - s->limit : 0.0;
 }
 
+/* The offsets of a sub-step into the loudspeaker whose Norton current is J. */
+static void offsets(OsOpampCircuit *s, double j)
+{
+    s->io0 = s->rho * j;
+    s->vo0 = -s->op.rs * s->io0;
+    s->vd0 = s->vo0 * s->inv_g;
+}
+
+/* The pin's rate where x moves at fx and the load is in state l:
+ * vo = x - Rs io, io = vo / (R1 + R2) + iL, so
+ * dvo/dt (1 + Rs / (R1 + R2)) = fx - Rs diL/dt, with diL/dt from the load
+ * (with Le = 0 it holds dvo/dt itself: solved for it). */
+static double pin_rate(const OsOpampCircuit *s, const OsLoadState *l, double fx)
+{
+    const double rs = s->op.rs, a = 1.0 + rs / OS_FEEDBACK_TOTAL;
+    if (s->load.le > 0.0) {
+        return (fx - rs * os_load_current_rate(&s->load, l, 0.0)) / a;
+    }
+    /* diL/dt = (dvo/dt - vm') / Re */
+    const double dvm = l->my[1] / s->load.cmes;
+    return (fx + rs * dvm / s->load.re) / (a + rs / s->load.re);
+}
+
+/* step() into a loudspeaker: the same two sub-steps, each with the load's
+ * Norton equivalent, then the load's states from the pin voltage. */
+static void step_speaker(OsOpampCircuit *s, double vin, double vin_g, OsStepResult *r)
+{
+    int iters = 0;
+    double mc[3];
+    OsLoadState lg, l1;
+    os_load_c_trap(&s->load, &s->ls, mc);
+    offsets(s, os_load_norton(&s->load, mc));
+    const double c1 = s->x + s->w * s->fx;
+    const double xg = solve(s, c1, vin_g, s->x + 2.0 * s->w * s->fx, &iters);
+    const double vog = s->rho * xg + s->vo0;
+    r->ind_mid[0] = os_opamp_indicator(&s->op, vin_g - s->fb * xg - s->vd0);
+    os_load_finish(&s->load, mc, vog, &lg);
+    const double fg = (xg - c1) / s->w;
+
+    os_load_c_bdf2(&s->load, &s->ls, &lg, mc);
+    offsets(s, os_load_norton(&s->load, mc));
+    const double c2 = OS_TRBDF2_A * xg - OS_TRBDF2_B * s->x;
+    double x = solve(s, c2, vin, xg + (xg - s->x) * ((1.0 - OS_TRBDF2_G) / OS_TRBDF2_G), &iters);
+    double fx = (x - c2) / s->w;
+    const double vo = s->rho * x + s->vo0;
+    os_load_finish(&s->load, mc, vo, &l1);
+    r->ind[0] = os_opamp_indicator(&s->op, vin - s->fb * x - s->vd0);
+    if (fabs(x) < 1e-30) {
+        x = 0.0;
+    }
+    if (fabs(fx) < 1e-30) {
+        fx = 0.0;
+    }
+    s->x = x;
+    s->fx = fx;
+    s->vin = vin;
+    s->ls = l1;
+    r->vmid = vog;
+    r->dvmid = pin_rate(s, &lg, fg);
+    r->vload = vo;
+    r->dvload = pin_rate(s, &l1, fx);
+    /* The loop derivative d(dx/dt)/dx at an instant, where the coil's current
+     * is a state (with Le = 0 the coil is Re to the motional voltage): not
+     * the sub-step's coupling, which depends on the step's length, so that a
+     * step taken in halves does not look like a change of regime to the
+     * trajectory (os_trajectory.c) and call for halving again. */
+    const double rs = s->op.rs;
+    const double gi = 1.0 / OS_FEEDBACK_TOTAL + (s->load.le > 0.0 ? 0.0 : 1.0 / s->load.re);
+    const double rho_i = 1.0 / (1.0 + rs * gi), kx_i = (1.0 - rho_i) / rs;
+    r->jac = -s->op.sr * s->op.kin * rho_i * s->inv_g * s->last_dt - s->op.wp -
+             kx_i * s->last_dlim - s->last_dclamp;
+    r->iload = l1.y[0];
+    r->dissipation = 0.0;
+    r->limiting = s->limit > OS_LIMITING_SHARE;
+    r->iters = iters;
+    r->ind_weight[0] = s->limit < 1.0 ? 1.0 - s->limit : 0.0;
+}
+
 static void save(const void *c, void *state)
 {
     const OsOpampCircuit *s = c;
@@ -301,6 +468,7 @@ static void save(const void *c, void *state)
     d[0] = s->x;
     d[1] = s->fx;
     d[2] = s->vin;
+    memcpy(d + 3, &s->ls, sizeof(s->ls));
 }
 
 static void restore(void *c, const void *state)
@@ -310,12 +478,13 @@ static void restore(void *c, const void *state)
     s->x = d[0];
     s->fx = d[1];
     s->vin = d[2];
+    memcpy(&s->ls, d + 3, sizeof(s->ls));
 }
 
 const OsCircuitOps os_circuit_opamp = {
     .name = "opamp",
     .size = sizeof(OsOpampCircuit),
-    .state_size = 3 * sizeof(double),
+    .state_size = 3 * sizeof(double) + sizeof(OsLoadState),
     .refine_depth = 1,
     .n_indicators = OS_OPAMP_INDICATORS,
     .indicators = os_opamp_zones,

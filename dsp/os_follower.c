@@ -44,6 +44,9 @@ double os_wright_omega(double z)
     if (z <= -2.0) {
         const double e = exp(z);
         w = e * (1.0 - e);
+        if (!(w > 0.0)) {
+            return 0.0; /* exp(z) flushed to zero (denormals off in run()) */
+        }
     } else if (z <= 1.0) {
         w = 1.0 + z * (0.5 + z * (1.0 / 16.0 -
                                   z * (1.0 / 192.0 + z * (1.0 / 3072.0 - z * 13.0 / 61440.0))));
@@ -77,6 +80,7 @@ void os_follower_setup(OsFollower *f, double vbe, double beta, double bias, doub
     f->re = re;
     f->rail = rail;
     f->gl = gl;
+    f->j = 0.0;
 }
 
 /* Both transistors at vo with junctions a = vbe_n, b = veb_p. */
@@ -122,6 +126,27 @@ static void finish(const OsFollower *f, double vo, OsFollowerPoint *p)
     p->dpd = 0.0; /* the dissipation is interpolated linearly (a meter) */
 }
 
+void os_follower_slopes(const OsFollower *f, const OsFollowerPoint *p, double gl, double *dout,
+                        double *dib)
+{
+    OsBjtEval n, q;
+    pair(f, p->vo, p->vbe, p->veb, &n, &q);
+    const double re = f->re;
+    /* as in finish(), with gl */
+    const double j11 = 1.0 + re * n.die_dvbe, j12 = 1.0 + re * q.die_dvbe;
+    const double j21 = n.die_dvbe + gl * j11, j22 = -q.die_dvbe;
+    const double e1 = re * (n.die_dvbc - q.die_dvbc);
+    const double e2 = n.die_dvbc + q.die_dvbc - gl * (1.0 - re * n.die_dvbc);
+    const double det = j11 * j22 - j12 * j21;
+    double da = 0.0, db = 0.0;
+    if (det != 0.0 && isfinite(det)) {
+        da = -(e1 * j22 - j12 * e2) / det;
+        db = -(j11 * e2 - e1 * j21) / det;
+    }
+    *dout = 1.0 - da - re * (n.die_dvbe * da + n.die_dvbc);
+    *dib = n.dib_dvbe * da + n.dib_dvbc - (q.dib_dvbe * db - q.dib_dvbc);
+}
+
 /* Newton-Raphson in (a, b) from the start in *p with junction limiting.
  * Returns 1 on convergence. *evals counts transistor-pair evaluations. */
 static int newton(const OsFollower *f, double vo, OsFollowerPoint *p, int *evals)
@@ -133,7 +158,7 @@ static int newton(const OsFollower *f, double vo, OsFollowerPoint *p, int *evals
         pair(f, vo, a, b, &n, &q);
         ++*evals;
         const double e1 = a + re * n.ie + b + re * q.ie - 2.0 * hb;
-        const double e2 = n.ie - q.ie - gl * (vo + hb - a - re * n.ie);
+        const double e2 = n.ie - q.ie - gl * (vo + hb - a - re * n.ie) - f->j;
         const double j11 = 1.0 + re * n.die_dvbe, j12 = 1.0 + re * q.die_dvbe;
         const double j21 = n.die_dvbe + gl * j11, j22 = -q.die_dvbe;
         const double det = j11 * j22 - j12 * j21;
@@ -184,17 +209,46 @@ static double junction_with_resistor(const OsBjt *t, double d, double vbc, doubl
     return v;
 }
 
-/* The fallback: the current balance at the output node,
- * K(out) = Ie_n - Ie_p - gl out, falls strictly with out; each junction given
- * out is solved in closed form. Between out = min(vo - hb, 0) and
- * max(vo + hb, 0) K changes sign (at the upper end the NPN's drive is not
- * positive, at the lower end the PNP's), so a safeguarded Newton iteration
- * in that bracket converges from anywhere. */
+/* The current balance at the output node, K(out) = Ie_n - Ie_p - gl out - j,
+ * with each junction given out solved in closed form; *a and *b receive the
+ * junctions. */
+static double balance(const OsFollower *f, double vo, double out, double vbc, double vcb, double *a,
+                      double *b, OsBjtEval *n, OsBjtEval *q, int *evals)
+{
+    const double hb = f->half_bias, re = f->re;
+    *a = junction_with_resistor(&f->npn, vo + hb - out, vbc, re);
+    *b = junction_with_resistor(&f->pnp, out - vo + hb, vcb, re);
+    pair(f, vo, *a, *b, n, q);
+    ++*evals;
+    return n->ie - q->ie - f->gl * out - f->j;
+}
+
+/* The fallback: the current balance K(out) falls strictly with out. With
+ * j = 0 it changes sign between out = min(vo - hb, 0) and max(vo + hb, 0) (at
+ * the upper end the NPN's drive is not positive, at the lower end the
+ * PNP's); a current j drawn by a reactive load moves the root beyond them by
+ * about a junction voltage and re |j|, so the bracket is widened until K
+ * changes sign across it. Then a safeguarded Newton iteration in that bracket
+ * converges from anywhere. */
 static void nested(const OsFollower *f, double vo, OsFollowerPoint *p, int *evals)
 {
     const double hb = f->half_bias, re = f->re, gl = f->gl;
     const double vbc = vo + hb - f->rail, vcb = -f->rail - (vo - hb);
     double lo = fmin(vo - hb, 0.0) - 1e-9, hi = fmax(vo + hb, 0.0) + 1e-9;
+    if (f->j != 0.0) {
+        double a, b;
+        OsBjtEval n, q;
+        double reach = 1.0 + re * fabs(f->j);
+        for (int i = 0; i < 60 && balance(f, vo, hi, vbc, vcb, &a, &b, &n, &q, evals) > 0.0; ++i) {
+            hi += reach;
+            reach *= 2.0;
+        }
+        reach = 1.0 + re * fabs(f->j);
+        for (int i = 0; i < 60 && balance(f, vo, lo, vbc, vcb, &a, &b, &n, &q, evals) < 0.0; ++i) {
+            lo -= reach;
+            reach *= 2.0;
+        }
+    }
     double out = p->out > lo && p->out < hi ? p->out : 0.5 * (lo + hi);
     double a = 0.0, b = 0.0;
     for (int it = 0; it < NODE_ITER; ++it) {
@@ -203,7 +257,7 @@ static void nested(const OsFollower *f, double vo, OsFollowerPoint *p, int *eval
         OsBjtEval n, q;
         pair(f, vo, a, b, &n, &q);
         ++*evals;
-        const double k = n.ie - q.ie - gl * out;
+        const double k = n.ie - q.ie - gl * out - f->j;
         if (k > 0.0) {
             lo = out;
         } else {

@@ -13,7 +13,7 @@
  * with the Ebers-Moll currents of os_bjt.h:
  *
  *   vbe_n + R_e Ie_n + veb_p + R_e Ie_p = bias                  (base loop)
- *   Ie_n - Ie_p = gl out,   out = vo + bias/2 - vbe_n - R_e Ie_n  (output node)
+ *   Ie_n - Ie_p = gl out + j,   out = vo + bias/2 - vbe_n - R_e Ie_n  (output node)
  *
  * with vbc_n = vo + bias/2 - rail and vcb_p = -rail - (vo - bias/2) fixed by vo.
  * Given vo the network has exactly one solution, and out, the base current
@@ -50,6 +50,10 @@ typedef struct {
     double re;        /**< emitter resistor, ohm */
     double rail;      /**< V */
     double gl;        /**< conductance from the output node to ground, S */
+    /** current drawn from the output node besides gl out, A: a reactive
+     *  load's Norton current within one sub-step (os_load.h); 0 otherwise,
+     *  and always 0 in a map */
+    double j;
 } OsFollower;
 
 /** The network's solution at one vo, with slopes by vo. */
@@ -73,6 +77,14 @@ void os_follower_setup(OsFollower *f, double vbe, double beta, double bias, doub
  *  anywhere). Returns the number of junction evaluations spent. Real-time safe. */
 int os_follower_solve(const OsFollower *f, double vo, const OsFollowerPoint *warm,
                       OsFollowerPoint *p);
+
+/** The network's slopes by vo at the solution @p p (its junctions), for an
+ *  output node loaded by conductance @p gl (S) in place of the network's own:
+ *  d(out)/dvo into *dout, d(ib)/dvo into *dib, by implicit differentiation of
+ *  the two equations of the header (j held). Used for a reactive load, whose
+ *  instantaneous conductance differs from a sub-step's. Real-time safe. */
+void os_follower_slopes(const OsFollower *f, const OsFollowerPoint *p, double gl, double *dout,
+                        double *dib);
 
 /** Segments of the map's domain; each is split into 2^depth intervals. */
 #define OS_FOLLOWER_SEGMENTS 128

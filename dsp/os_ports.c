@@ -17,6 +17,9 @@ static const OsScalePoint oversample_points[] = {{1.0f, "1x"}, {2.0f, "2x"},   {
 static const OsScalePoint listen_points[] = {
     {0.0f, "output"}, {1.0f, "distortion alone"}, {0.0f, NULL}};
 
+static const OsScalePoint load_model_points[] = {
+    {0.0f, "resistor"}, {1.0f, "loudspeaker or headphone driver"}, {0.0f, NULL}};
+
 static const OsScalePoint loop_points[] = {
     {0.0f, "feedback from op-amp output"}, {1.0f, "feedback from load"}, {0.0f, NULL}};
 
@@ -76,7 +79,29 @@ static const OsScalePoint loop_points[] = {
 
 #define LOAD(df)                                                                                   \
     CTL("load", "Load", "ohm", 1.0f, 100000.0f, df, OS_PF_LOGARITHMIC, OS_P_LOAD, NULL, LOG,       \
-        OS_SI_SCALE, 1.0, "Load resistance from the output to ground.")
+        OS_SI_SCALE, 1.0,                                                                          \
+        "Load resistance from the output to ground; with the loudspeaker model, the voice "        \
+        "coil's resistance Re.")
+
+/* The loudspeaker or headphone driver (os_load.h), after every older control
+ * of both stages (../shared/interface.md). */
+#define SPEAKER                                                                                    \
+    CTL("load_model", "Load model", "", 0.0f, 1.0f, 0.0f, OS_PF_ENUMERATION | OS_PF_INTEGER,       \
+        OS_P_LOAD_MODEL, load_model_points, OS_SMOOTH_JUMP, OS_SI_SCALE, 1.0,                      \
+        "0 a resistor (Load ohms); 1 a moving-coil driver's impedance from its Thiele-Small "      \
+        "parameters, Load being its voice-coil resistance Re."),                                   \
+        CTL("speaker_le", "Voice-coil inductance", "mH", 0.0f, 5.0f, 0.3f, 0, OS_P_SPEAKER_LE,     \
+            NULL, LIN, OS_SI_SCALE, 1e-3, "Inductance Le of the driver's voice coil."),            \
+        CTL("speaker_fs", "Driver resonance", "Hz", 10.0f, 5000.0f, 80.0f, OS_PF_LOGARITHMIC,      \
+            OS_P_SPEAKER_FS, NULL, LOG, OS_SI_SCALE, 1.0,                                          \
+            "Resonance frequency fs of the driver in free air."),                                  \
+        CTL("speaker_qms", "Mechanical Q", "", 0.5f, 30.0f, 4.0f, OS_PF_LOGARITHMIC,               \
+            OS_P_SPEAKER_QMS, NULL, LOG, OS_SI_SCALE, 1.0,                                         \
+            "Mechanical Q of the driver at resonance (Qms)."),                                     \
+        CTL("speaker_qes", "Electrical Q", "", 0.1f, 5.0f, 0.5f, OS_PF_LOGARITHMIC,                \
+            OS_P_SPEAKER_QES, NULL, LOG, OS_SI_SCALE, 1.0,                                         \
+            "Electrical Q of the driver at resonance (Qes); with Qms it sets the impedance "       \
+            "peak Re (1 + Qms / Qes) at fs.")
 
 #define METERS_HEAD                                                                                \
     METER("peak_current", "Peak load current", "A", 100.0f, 0, OS_M_PEAK_CURRENT,                  \
@@ -92,7 +117,7 @@ static const OsScalePoint loop_points[] = {
           "Processing delay in frames.")
 
 static const OsPortInfo opamp_ports[] = {
-    AUDIO_IN, COMMON_HEAD, LOAD(32.0f), COMMON_TAIL, METERS_HEAD, METER_LATENCY,
+    AUDIO_IN, COMMON_HEAD, LOAD(32.0f), COMMON_TAIL, SPEAKER, METERS_HEAD, METER_LATENCY,
 };
 
 static const OsPortInfo pushpull_ports[] = {
@@ -111,6 +136,7 @@ static const OsPortInfo pushpull_ports[] = {
     CTL("loop", "Feedback point", "", 0.0f, 1.0f, 1.0f, OS_PF_ENUMERATION | OS_PF_INTEGER,
         OS_P_LOOP, loop_points, OS_SMOOTH_JUMP, OS_SI_SCALE, 1.0,
         "0 takes feedback from the op-amp output, 1 from the load (follower inside the loop)."),
+    SPEAKER,
     METERS_HEAD,
     METER("dissipation", "Transistor dissipation", "W", 10000.0f, 0, OS_M_DISSIPATION,
           "Mean power dissipated in the two output transistors during the last block."),

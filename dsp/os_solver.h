@@ -68,8 +68,9 @@ typedef double (*OsScalarResidual)(void *ctx, double x, double *d);
  * the number of evaluations. Real-time safe. Inline, so that the circuit's residual is inlined into
  * the loop.
  */
-static inline double os_newton_scalar(OsScalarResidual fn, void *ctx, double guess, double lo,
-                                      double hi, double tol, int max_iter, int *iters)
+static inline double os_newton_scalar_core(OsScalarResidual fn, void *ctx, double guess, double lo,
+                                           double hi, double tol, int max_iter, int *iters,
+                                           int unit)
 {
     /* A guess outside the bracket moves to its nearer end; NaN to the middle. */
     double x = guess < lo ? lo : guess > hi ? hi : guess;
@@ -91,6 +92,17 @@ static inline double os_newton_scalar(OsScalarResidual fn, void *ctx, double gue
             hi = x;
         } else {
             lo = x;
+        }
+        if (unit) {
+            /* R' >= 1: the root lies within |r| of x; twice that, so that a
+             * Newton step of slope near 1, which lands on x - r itself, stays
+             * strictly inside */
+            const double far = x - 2.0 * r;
+            if (r > 0.0) {
+                lo = lo > far ? lo : far;
+            } else {
+                hi = hi < far ? hi : far;
+            }
         }
         const double step = r / d;
         const double a = fabs(step);
@@ -127,6 +139,25 @@ static inline double os_newton_scalar(OsScalarResidual fn, void *ctx, double gue
         *iters = it;
     }
     return x;
+}
+
+static inline double os_newton_scalar(OsScalarResidual fn, void *ctx, double guess, double lo,
+                                      double hi, double tol, int max_iter, int *iters)
+{
+    return os_newton_scalar_core(fn, ctx, guess, lo, hi, tol, max_iter, iters, 0);
+}
+
+/**
+ * os_newton_scalar() for a residual whose slope is at least 1 everywhere:
+ * then each evaluation also bounds the root from the other side (it lies
+ * within |R(x)| of x), so the bracket may start infinite (@p lo = -HUGE_VAL,
+ * @p hi = HUGE_VAL) and is finite after the first evaluation. The guess must
+ * be finite. Real-time safe.
+ */
+static inline double os_newton_scalar_unit(OsScalarResidual fn, void *ctx, double guess, double lo,
+                                           double hi, double tol, int max_iter, int *iters)
+{
+    return os_newton_scalar_core(fn, ctx, guess, lo, hi, tol, max_iter, iters, 1);
 }
 
 /** Largest system os_linear_solve() handles. */

@@ -42,6 +42,7 @@ static const UnitMap unit_map[] = {
     {"ms", "units:ms", NULL, NULL, NULL, NULL},
     {"V", NULL, "volt", "volts", "V", "%f V"},
     {"mA", NULL, "milliampere", "milliamperes", "mA", "%f mA"},
+    {"mH", NULL, "millihenry", "millihenries", "mH", "%f mH"},
     {"A", NULL, "ampere", "amperes", "A", "%f A"},
     {"W", NULL, "watt", "watts", "W", "%f W"},
     {"ohm", NULL, "ohm", "ohms", "\xce\xa9", "%f \xce\xa9"},

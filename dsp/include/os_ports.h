@@ -44,6 +44,11 @@ typedef enum {
     OS_P_BIAS,
     OS_P_EMITTER_R,
     OS_P_LOOP,
+    OS_P_LOAD_MODEL,
+    OS_P_SPEAKER_LE,
+    OS_P_SPEAKER_FS,
+    OS_P_SPEAKER_QMS,
+    OS_P_SPEAKER_QES,
     OS_P_COUNT
 } OsParam;
 

@@ -78,7 +78,7 @@ static void every_control_range(void **state)
             ++checked;
         }
         printf("%s: %d controls, each refused beyond its range\n", cli_stage_name(kind), checked);
-        assert_int_equal(checked, kind == OS_STAGE_OPAMP ? 13 : 18);
+        assert_int_equal(checked, kind == OS_STAGE_OPAMP ? 18 : 23);
     }
 }
 

@@ -38,6 +38,15 @@ static const Expect pushpull_only[] = {
     {"emitter_r", 0, 10, 0.22f, "ohm"}, {"loop", 0, 1, 1, ""},
 };
 
+/* Contract: "Control inputs added for real loads and supplies (after those
+ * above, in this order)", both stages: the loudspeaker's rows, the first five
+ * of that table (the others follow when they exist). */
+static const Expect speaker[] = {
+    {"load_model", 0, 1, 0, ""},        {"speaker_le", 0, 5, 0.3f, "mH"},
+    {"speaker_fs", 10, 5000, 80, "Hz"}, {"speaker_qms", 0.5f, 30, 4, ""},
+    {"speaker_qes", 0.1f, 5, 0.5f, ""},
+};
+
 /* The SI unit of each port unit (SI prefixes, BIPM SI Brochure, 9th ed.,
  * 2019): what the circuits are given. dB ports become ratios 10^(dB/20). */
 static const struct {
@@ -47,13 +56,15 @@ static const struct {
 } si_units[] = {
     {"", OS_SI_SCALE, 1.0},     {"V", OS_SI_SCALE, 1.0},   {"ohm", OS_SI_SCALE, 1.0},
     {"x", OS_SI_SCALE, 1.0},    {"mA", OS_SI_SCALE, 1e-3}, {"MHz", OS_SI_SCALE, 1e6},
-    {"V/us", OS_SI_SCALE, 1e6}, {"dB", OS_SI_DB, 1.0},
+    {"V/us", OS_SI_SCALE, 1e6}, {"dB", OS_SI_DB, 1.0},     {"mH", OS_SI_SCALE, 1e-3},
+    {"Hz", OS_SI_SCALE, 1.0},
 };
 
 /* A control's conversion to SI units and its smoothing follow from its unit
  * and its kind: the contract's "logarithmic" controls glide on a log scale,
  * enable and listen crossfade, the oversampling factor restarts the filters,
- * the feedback point switches at once, every other control glides linearly. */
+ * the feedback point and the load model switch at once, every other control
+ * glides linearly. */
 static void check_conversion(const OsPortInfo *p)
 {
     int found = 0;
@@ -72,7 +83,7 @@ static void check_conversion(const OsPortInfo *p)
         want = OS_SMOOTH_FADE;
     } else if (p->id == OS_P_OVERSAMPLE) {
         want = OS_SMOOTH_RESTART;
-    } else if (p->id == OS_P_LOOP) {
+    } else if (p->id == OS_P_LOOP || p->id == OS_P_LOAD_MODEL) {
         want = OS_SMOOTH_JUMP;
     }
     assert_int_equal(p->smooth, want);
@@ -105,6 +116,9 @@ static void check_stage(OsStageKind k, float load_def, const char *const *output
         for (size_t c = 0; c < sizeof(pushpull_only) / sizeof(pushpull_only[0]); ++c) {
             check_control(k, i++, &pushpull_only[c], load_def);
         }
+    }
+    for (size_t c = 0; c < sizeof(speaker) / sizeof(speaker[0]); ++c) {
+        check_control(k, i++, &speaker[c], load_def);
     }
     for (size_t o = 0; o < nout; ++o) {
         const OsPortInfo *p = os_port_get(k, i++);

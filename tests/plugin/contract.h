@@ -3,9 +3,9 @@
 
 /* The port contract, typed in by hand from /work/shared/interface.md
  * ("outstage: the public interface contract", sections "Names", "Control
- * inputs, common to both", "Control inputs of pushpull only" and "Control
- * outputs"). It is deliberately independent of dsp/os_ports.c: the plugin
- * tests compare what hosts see against this, not against the code. */
+ * inputs, common to both", "Control inputs of pushpull only", "Control
+ * inputs added for real loads and supplies" and "Control outputs"). It is deliberately independent
+ * of dsp/os_ports.c: the plugin tests compare what hosts see against this, not against the code. */
 
 #ifndef OS_TEST_CONTRACT_H
 #define OS_TEST_CONTRACT_H
@@ -74,9 +74,22 @@ typedef struct {
         "latency", "frames", 0, 0, 0, C_LATENCY                                                    \
     }
 
+/* "Control inputs added for real loads and supplies (after those above, in
+ * this order)": the loudspeaker's five, the first of that table's rows (the
+ * supply's and the pair's follow them when they exist). */
+#define C_SPEAKER                                                                                  \
+    {"load_model", "", 0.0f, 1.0f, 0.0f, C_IN | C_ENUM},                                           \
+        {"speaker_le", "mH", 0.0f, 5.0f, 0.3f, C_IN},                                              \
+        {"speaker_fs", "Hz", 10.0f, 5000.0f, 80.0f, C_IN | C_LOG},                                 \
+        {"speaker_qms", "", 0.5f, 30.0f, 4.0f, C_IN | C_LOG},                                      \
+    {                                                                                              \
+        "speaker_qes", "", 0.1f, 5.0f, 0.5f, C_IN | C_LOG                                          \
+    }
+
 static const ContractPort contract_opamp_ports[] = {
-    C_AUDIO_PORTS, C_COMMON_HEAD, {"load", "ohm", 1.0f, 100000.0f, 32.0f, C_IN | C_LOG},
-    C_COMMON_TAIL, C_METERS_HEAD, C_LATENCY_PORT,
+    C_AUDIO_PORTS,  C_COMMON_HEAD, {"load", "ohm", 1.0f, 100000.0f, 32.0f, C_IN | C_LOG},
+    C_COMMON_TAIL,  C_SPEAKER,     C_METERS_HEAD,
+    C_LATENCY_PORT,
 };
 
 static const ContractPort contract_pushpull_ports[] = {
@@ -89,6 +102,7 @@ static const ContractPort contract_pushpull_ports[] = {
     {"bias", "V", 0.0f, 2.0f, 0.0f, C_IN | C_NO_NOTES},
     {"emitter_r", "ohm", 0.0f, 10.0f, 0.22f, C_IN | C_NO_NOTES},
     {"loop", "", 0.0f, 1.0f, 1.0f, C_IN | C_NO_NOTES},
+    C_SPEAKER,
     C_METERS_HEAD,
     {"dissipation", "W", 0, 0, 0, 0},
     C_LATENCY_PORT,

@@ -149,15 +149,21 @@ static double decode_default(const LADSPA_PortRangeHint *h)
  *   slew 0.5 V/us  -> log LOW of 0.1..100 = 0.562 V/us (0.1, 0.562, 1)
  *   oversample 4   -> LOW of 1..16 = 4.75, rounded (INTEGER) to 5, which the
  *                     stage snaps to 4 (nearest power of two on a log scale)
+ *   speaker_le 0.3 mH -> 1 of 0..5          = 1 mH     (0, 1, 1.25, 2.5)
+ *   speaker_fs 80 Hz  -> 100 of log 10..5000 = 100 Hz  (47.3, 100, 224)
+ *   speaker_qms 4     -> log MIDDLE of 0.5..30 = 3.873 (1.39, 3.87, 10.8)
+ *   speaker_qes 0.5   -> log MIDDLE of 0.1..5  = 0.7071 (0.266, 0.707, 1)
  * and the rest are exactly the contract's defaults. */
 static const struct {
     const char *symbol;
     double value;
 } ladspa_defaults[] = {
-    {"enable", 1.0},  {"fullscale", 1.0},  {"drive", 0.0},      {"gain", 10.0},
-    {"rail", 16.125}, {"headroom", 1.25},  {"ilimit", 50.75},   {"load", 17.7827941},
-    {"gbw", 1.0},     {"slew", 0.5623413}, {"oversample", 5.0}, {"listen", 0.0},
-    {"trim", 0.0},
+    {"enable", 1.0},       {"fullscale", 1.0},         {"drive", 0.0},
+    {"gain", 10.0},        {"rail", 16.125},           {"headroom", 1.25},
+    {"ilimit", 50.75},     {"load", 17.7827941},       {"gbw", 1.0},
+    {"slew", 0.5623413},   {"oversample", 5.0},        {"listen", 0.0},
+    {"trim", 0.0},         {"load_model", 0.0},        {"speaker_le", 1.0},
+    {"speaker_fs", 100.0}, {"speaker_qms", 3.8729833}, {"speaker_qes", 0.70710678},
 };
 
 static double expected_default(const char *symbol)

@@ -114,7 +114,7 @@ static void check_identity(const ContractStage *c)
 }
 
 /* The unit a host would show for a contract unit: the LV2 units extension's
- * standard instance where it has one (units.ttl: db, pc, mhz, frame), else the
+ * standard instance where it has one (units.ttl: db, pc, hz, mhz, frame), else the
  * units:symbol of a custom unit, typeset as in SI (ohm as the Greek capital
  * omega, microsecond with the micro sign, the oversampling factor as a
  * multiplication sign). */
@@ -129,6 +129,8 @@ static void expected_unit(const char *contract_unit, const char **std_uri, const
         {"frames", LV2_UNITS "frame", NULL},
         {"V", NULL, "V"},
         {"mA", NULL, "mA"},
+        {"mH", NULL, "mH"},
+        {"Hz", LV2_UNITS "hz", NULL},
         {"A", NULL, "A"},
         {"W", NULL, "W"},
         {"ohm", NULL, "\xce\xa9"},
