@@ -261,6 +261,11 @@ void sp_circuit_of(const OsStage *s, double amp, double freq, SpCircuit *k)
     k->bias = (double)os_stage_get(s, OS_P_BIAS);
     k->emitter_r = (double)os_stage_get(s, OS_P_EMITTER_R);
     k->loop = os_stage_get(s, OS_P_LOOP) >= 0.5f;
+    k->speaker = os_stage_get(s, OS_P_LOAD_MODEL) >= 0.5f;
+    k->le = (double)os_stage_get(s, OS_P_SPEAKER_LE) * 1e-3;
+    k->fs = (double)os_stage_get(s, OS_P_SPEAKER_FS);
+    k->qms = (double)os_stage_get(s, OS_P_SPEAKER_QMS);
+    k->qes = (double)os_stage_get(s, OS_P_SPEAKER_QES);
     k->source[0] = '\0';
 }
 
@@ -273,6 +278,27 @@ void sp_put_circuit(SpSubst *sub, const SpCircuit *k, int follower)
     sp_put(sub, "HEADROOM", "%.17g", k->headroom);
     sp_put(sub, "ILIMIT", "%.17g", k->ilimit);
     sp_put(sub, "RLOAD", "%.17g", k->load);
+    if (k->speaker) {
+        /* the voice coil Re + Le, then the motional parallel R-L-C from the
+         * Thiele-Small parameters (Small 1972): Res = Re Qms / Qes,
+         * Cmes = Qes / (2 pi fs Re), Lces = 1 / ((2 pi fs)^2 Cmes); with
+         * Le = 0 the coil's resistor joins the branch directly */
+        const double ws = 2.0 * M_PI * k->fs;
+        const double res = k->load * k->qms / k->qes, cmes = k->qes / (ws * k->load);
+        const double lces = 1.0 / (ws * ws * cmes);
+        if (k->le > 0.0) {
+            sp_put(sub, "LOAD_NET",
+                   "Rl out nle {rload}\nLe nle nm %.17g\nRes nm 0 %.17g\nLces nm 0 %.17g\n"
+                   "Cmes nm 0 %.17g",
+                   k->le, res, lces, cmes);
+        } else {
+            sp_put(sub, "LOAD_NET",
+                   "Rl out nm {rload}\nRes nm 0 %.17g\nLces nm 0 %.17g\nCmes nm 0 %.17g", res,
+                   lces, cmes);
+        }
+    } else {
+        sp_put(sub, "LOAD_NET", "Rl out 0 {rload}");
+    }
     sp_put(sub, "GBW", "%.17g", k->gbw);
     sp_put(sub, "SLEW", "%.17g", k->slew);
     sp_put(sub, "OS_OPAMP_A0", "%.17g", OS_OPAMP_A0);

@@ -42,6 +42,10 @@ typedef struct {
         slew;                         /* Hz, dB, V, V, A, ohm, Hz, V/s */
     double is, beta, bias, emitter_r; /* the follower (push-pull stage): A, -, V, ohm */
     int loop;                         /* 1: feedback from the load */
+    /* the load (dsp/os_load.h): 1 a loudspeaker of voice-coil resistance
+     * load, inductance le (H), resonance fs (Hz), mechanical and electrical Q */
+    int speaker;
+    double le, fs, qms, qes;
     /* the input source's netlist line(s) for node in; empty: the sine of
      * vin_amp and freq (sp_put_circuit()) */
     char source[256];
