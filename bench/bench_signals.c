@@ -100,7 +100,7 @@ static float sweep_value(const Sweep *sw, double t)
 /* Time stage @p kind (defaults, @p factor) at @p rate on x[0..n), @p repeat
  * times from a fresh stage; the fastest repetition's figures count. */
 static int time_run(OsStageKind kind, double rate, int factor, const float *x, float *y, size_t n,
-                    int repeat, const Sweep *sw, Timing *out)
+                    int repeat, const Sweep *sw, int speaker, Timing *out)
 {
     const size_t nb = (n + BLOCK - 1) / BLOCK;
     double *blocks = malloc(nb * sizeof(double)), *best_blocks = malloc(nb * sizeof(double));
@@ -118,6 +118,11 @@ static int time_run(OsStageKind kind, double rate, int factor, const float *x, f
             return -1;
         }
         os_stage_set(s, OS_P_OVERSAMPLE, (float)factor);
+        if (speaker) {
+            /* the default driver: Re 8 ohm and the port table's Thiele-Small values */
+            os_stage_set(s, OS_P_LOAD_MODEL, 1.0f);
+            os_stage_set(s, OS_P_LOAD, 8.0f);
+        }
         if (sw && sw->port) {
             os_stage_set(s, (OsParam)sw->port->id, sweep_value(sw, 0.0));
         }
@@ -163,7 +168,7 @@ static double xrt(double ns_per_frame, double rate)
     return 1e9 / ns_per_frame / rate;
 }
 
-static int signal_table(const BenchOptions *o, double rate, int factor)
+static int signal_table(const BenchOptions *o, double rate, int factor, int speaker)
 {
     const size_t n = (size_t)(o->seconds * rate);
     float *x = malloc(n * sizeof(float)), *y = malloc(n * sizeof(float));
@@ -172,14 +177,16 @@ static int signal_table(const BenchOptions *o, double rate, int factor)
         free(y);
         return 1;
     }
-    printf("\n## The signal set at %.0f kHz, %dx\n\n"
+    printf("\n## The signal set at %.0f kHz, %dx%s\n\n"
            "Each stage at its defaults but the factor, %.2f s of each signal, blocks of %d "
            "frames, fastest of %d runs from a fresh stage (the DSP library called directly; "
            "the plugins add a few ns per block). *worst 0.1 %%*: the block cost only one block "
            "in a thousand exceeds; *worst block*: the most expensive one (with fewer than "
            "1000 blocks the two coincide). x real time: seconds of audio per second of one "
            "core.\n\n",
-           rate / 1e3, factor, o->seconds, BLOCK, o->repeat);
+           rate / 1e3, factor,
+           speaker ? ", into a loudspeaker (load_model 1, Re 8 ohm, the driver's defaults)" : "",
+           o->seconds, BLOCK, o->repeat);
     printf("| stage | signal | ns/frame | x real time | worst 0.1 %% (ns/frame) | x real time "
            "| worst block (ns/frame) | x real time | Newton evaluations/step |\n"
            "|---|---|---|---|---|---|---|---|---|\n");
@@ -192,7 +199,8 @@ static int signal_table(const BenchOptions *o, double rate, int factor)
         for (int sig = 0; sig < SIG_COUNT; ++sig) {
             make_signal((Signal)sig, x, n, rate);
             Timing tm;
-            if (time_run((OsStageKind)k, rate, factor, x, y, n, o->repeat, NULL, &tm) != 0) {
+            if (time_run((OsStageKind)k, rate, factor, x, y, n, o->repeat, NULL, speaker, &tm) !=
+                0) {
                 rc = 1;
                 continue;
             }
@@ -314,7 +322,7 @@ static int automation_table(const BenchOptions *o)
             }
             Sweep sw = {os_port_get((OsStageKind)k, (uint32_t)idx)};
             Timing tm;
-            if (time_run((OsStageKind)k, rate, factor, x, y, n, o->repeat, &sw, &tm) != 0) {
+            if (time_run((OsStageKind)k, rate, factor, x, y, n, o->repeat, &sw, 0, &tm) != 0) {
                 rc = 1;
                 continue;
             }
@@ -341,8 +349,9 @@ static int automation_table(const BenchOptions *o)
 
 int bench_signals(const BenchOptions *o)
 {
-    int rc = signal_table(o, 48000.0, 4);
-    rc |= signal_table(o, 96000.0, 16);
+    int rc = signal_table(o, 48000.0, 4, 0);
+    rc |= signal_table(o, 96000.0, 16, 0);
+    rc |= signal_table(o, 48000.0, 4, 1);
     rc |= automation_table(o);
     return rc;
 }
