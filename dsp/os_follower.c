@@ -92,37 +92,45 @@ static void pair(const OsFollower *f, double vo, double a, double b, OsBjtEval *
 
 /* The solution's output node, base current, dissipation and slopes by vo,
  * from its junctions. */
+/* The network's slopes by vo at the junctions' evaluations @p n, @p q, with
+ * the output node loaded by @p gl: by implicit differentiation of the two
+ * equations in (a, b)
+ *   E1 = a + re Ie_n + b + re Ie_p - bias = 0
+ *   E2 = Ie_n - Ie_p - gl (vo + hb - a - re Ie_n) - j = 0
+ * where vbc_n rises with vo and vcb_p falls with it (j held). */
+static void slopes(const OsFollower *f, const OsBjtEval *n, const OsBjtEval *q, double gl,
+                   double *da, double *db, double *dout, double *dib)
+{
+    const double re = f->re;
+    const double j11 = 1.0 + re * n->die_dvbe, j12 = 1.0 + re * q->die_dvbe;
+    const double j21 = n->die_dvbe + gl * j11, j22 = -q->die_dvbe;
+    const double e1 = re * (n->die_dvbc - q->die_dvbc);
+    const double e2 = n->die_dvbc + q->die_dvbc - gl * (1.0 - re * n->die_dvbc);
+    const double det = j11 * j22 - j12 * j21;
+    *da = 0.0;
+    *db = 0.0;
+    if (det != 0.0 && isfinite(det)) {
+        *da = -(e1 * j22 - j12 * e2) / det;
+        *db = -(j11 * e2 - e1 * j21) / det;
+    }
+    const double dien = n->die_dvbe * *da + n->die_dvbc;
+    *dout = 1.0 - *da - re * dien;
+    *dib = n->dib_dvbe * *da + n->dib_dvbc - (q->dib_dvbe * *db - q->dib_dvbc);
+}
+
 static void finish(const OsFollower *f, double vo, OsFollowerPoint *p)
 {
     OsBjtEval n, q;
     pair(f, vo, p->vbe, p->veb, &n, &q);
-    const double re = f->re, gl = f->gl, hb = f->half_bias;
+    const double re = f->re, hb = f->half_bias;
     p->out = vo + hb - p->vbe - re * n.ie;
     p->ib = n.ib - q.ib;
     /* dissipation Ic Vce + Ib Vbe of each (the emitter resistors excluded) */
     const double en = p->out + re * n.ie, ep = p->out - re * q.ie;
     p->pd = n.ic * (f->rail - en) + n.ib * (vo + hb - en) + q.ic * (ep + f->rail) +
             q.ib * (ep - (vo - hb));
-    /* Slopes by implicit differentiation of the two equations in (a, b):
-     *   E1 = a + re Ie_n + b + re Ie_p - bias = 0
-     *   E2 = Ie_n - Ie_p - gl (vo + hb - a - re Ie_n) = 0
-     * where vbc_n rises with vo and vcb_p falls with it. */
-    const double j11 = 1.0 + re * n.die_dvbe, j12 = 1.0 + re * q.die_dvbe;
-    const double j21 = n.die_dvbe + gl * j11, j22 = -q.die_dvbe;
-    const double e1 = re * (n.die_dvbc - q.die_dvbc);
-    const double e2 = n.die_dvbc + q.die_dvbc - gl * (1.0 - re * n.die_dvbc);
-    const double det = j11 * j22 - j12 * j21;
-    double da = 0.0, db = 0.0;
-    if (det != 0.0 && isfinite(det)) {
-        da = -(e1 * j22 - j12 * e2) / det;
-        db = -(j11 * e2 - e1 * j21) / det;
-    }
     p->vo = vo;
-    p->dvbe = da;
-    p->dveb = db;
-    const double dien = n.die_dvbe * da + n.die_dvbc;
-    p->dout = 1.0 - da - re * dien;
-    p->dib = n.dib_dvbe * da + n.dib_dvbc - (q.dib_dvbe * db - q.dib_dvbc);
+    slopes(f, &n, &q, f->gl, &p->dvbe, &p->dveb, &p->dout, &p->dib);
     p->dpd = 0.0; /* the dissipation is interpolated linearly (a meter) */
 }
 
@@ -131,20 +139,8 @@ void os_follower_slopes(const OsFollower *f, const OsFollowerPoint *p, double gl
 {
     OsBjtEval n, q;
     pair(f, p->vo, p->vbe, p->veb, &n, &q);
-    const double re = f->re;
-    /* as in finish(), with gl */
-    const double j11 = 1.0 + re * n.die_dvbe, j12 = 1.0 + re * q.die_dvbe;
-    const double j21 = n.die_dvbe + gl * j11, j22 = -q.die_dvbe;
-    const double e1 = re * (n.die_dvbc - q.die_dvbc);
-    const double e2 = n.die_dvbc + q.die_dvbc - gl * (1.0 - re * n.die_dvbc);
-    const double det = j11 * j22 - j12 * j21;
-    double da = 0.0, db = 0.0;
-    if (det != 0.0 && isfinite(det)) {
-        da = -(e1 * j22 - j12 * e2) / det;
-        db = -(j11 * e2 - e1 * j21) / det;
-    }
-    *dout = 1.0 - da - re * (n.die_dvbe * da + n.die_dvbc);
-    *dib = n.dib_dvbe * da + n.dib_dvbc - (q.dib_dvbe * db - q.dib_dvbc);
+    double da, db;
+    slopes(f, &n, &q, gl, &da, &db, dout, dib);
 }
 
 /* Newton-Raphson in (a, b) from the start in *p with junction limiting.
