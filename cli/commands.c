@@ -186,7 +186,8 @@ int cli_cmd_plot(const CliArgs *a)
         return fail(CLI_EXIT_USAGE, err);
     }
     if (cli_figure_parse(a->pos[1], &fig) != 0) {
-        cli_err(err, sizeof(err), "'%s': no such plot (transfer, thd, spectrum)", a->pos[1]);
+        cli_err(err, sizeof(err),
+                "'%s': no such plot (transfer, thd, spectrum, impedance, response)", a->pos[1]);
         return fail(CLI_EXIT_USAGE, err);
     }
     if (cli_plot_check_path(a->pos[2], err, sizeof(err)) != 0) {
@@ -208,8 +209,13 @@ int cli_cmd_plot(const CliArgs *a)
         spec.rate = isnan(a->rate) ? spec.rate : a->rate;
         spec.freq = isnan(a->freq) ? spec.freq : a->freq;
         spec.level = a->level;
-        rc = fig == CLI_FIG_TRANSFER ? cli_figure_transfer(a->pos[2], &spec, err, sizeof(err))
-                                     : cli_figure_spectrum(a->pos[2], &spec, err, sizeof(err));
+        if (fig == CLI_FIG_IMPEDANCE || fig == CLI_FIG_RESPONSE) {
+            rc = cli_figure_load(a->pos[2], fig, &spec, err, sizeof(err));
+        } else if (fig == CLI_FIG_TRANSFER) {
+            rc = cli_figure_transfer(a->pos[2], &spec, err, sizeof(err));
+        } else {
+            rc = cli_figure_spectrum(a->pos[2], &spec, err, sizeof(err));
+        }
     }
     return rc == 0 ? 0 : fail(CLI_EXIT_FAILURE, err);
 }

@@ -21,8 +21,8 @@ static const double GREY[3] = {0.55, 0.55, 0.55};
 
 int cli_figure_parse(const char *name, CliFigure *fig)
 {
-    static const char *const names[] = {"transfer", "thd", "spectrum"};
-    for (int i = 0; i < 3; ++i) {
+    static const char *const names[] = {"transfer", "thd", "spectrum", "impedance", "response"};
+    for (int i = 0; i < 5; ++i) {
         if (strcmp(name, names[i]) == 0) {
             *fig = (CliFigure)i;
             return 0;
@@ -227,4 +227,154 @@ int cli_figure_spectrum(const char *path, const CliFigureSpec *spec, char *err, 
     free(rms);
     free(hz);
     return rc;
+}
+
+int cli_load_point(const CliSettings *s, double rate, double amp, double f, double *z,
+                   double *gain_db, char *err, size_t len)
+{
+    OsStage *st = cli_stage_new(s, rate, err, len);
+    if (!st) {
+        return -1;
+    }
+    /* settle: 20 cycles or 0.1 s, and six of the driver's own decay times
+     * Qms / (pi fs) (at most 2 s) */
+    double settle_s = fmax(0.1, 20.0 / f);
+    if (s->value[OS_P_LOAD_MODEL] >= 0.5f) {
+        const double tau =
+            (double)s->value[OS_P_SPEAKER_QMS] / (M_PI * (double)s->value[OS_P_SPEAKER_FS]);
+        settle_s += fmin(6.0 * tau, 2.0);
+    }
+    const size_t settle = (size_t)ceil(settle_s * rate);
+    /* measured over whole cycles, at least 50 ms */
+    const size_t cyc = (size_t)ceil(0.05 * f) > 1 ? (size_t)ceil(0.05 * f) : 1;
+    const size_t n = (size_t)llround((double)cyc * rate / f);
+    const size_t block = 4096;
+    float *x = malloc((n > block ? n : block) * sizeof(float));
+    float *y = malloc((n > block ? n : block) * sizeof(float));
+    if (!x || !y) {
+        free(x);
+        free(y);
+        os_stage_free(st);
+        cli_err(err, len, "out of memory");
+        return -1;
+    }
+    size_t t = 0;
+    while (t < settle) {
+        const size_t m = settle - t < block ? settle - t : block;
+        for (size_t i = 0; i < m; ++i) {
+            x[i] = (float)(amp * sin(2.0 * M_PI * f * (double)(t + i) / rate));
+        }
+        os_stage_process(st, x, y, (uint32_t)m);
+        t += m;
+    }
+    for (size_t i = 0; i < n; ++i) {
+        x[i] = (float)(amp * sin(2.0 * M_PI * f * (double)(t + i) / rate));
+    }
+    os_stage_process(st, x, y, (uint32_t)n);
+    OsMeters m;
+    os_stage_meters(st, &m);
+    os_stage_free(st);
+    free(x);
+    free(y);
+    *z = m.peak_current > 0.0 ? m.peak_load_v / m.peak_current : (double)NAN;
+    const double ideal = cli_settings_gain(s) * amp * cli_settings_volts_per_unit(s);
+    *gain_db = 20.0 * log10(m.peak_load_v / ideal);
+    return 0;
+}
+
+/* "Re 8 ohm, Le 0.3 mH, fs 80 Hz, Qms 4, Qes 0.5", or "8 ohm resistor". */
+static void describe_load(const CliSettings *s, char *buf, size_t len)
+{
+    if (s->value[OS_P_LOAD_MODEL] >= 0.5f) {
+        snprintf(buf, len, "driver Re %g ohm, Le %g mH, fs %g Hz, Qms %g, Qes %g",
+                 (double)s->value[OS_P_LOAD], (double)s->value[OS_P_SPEAKER_LE],
+                 (double)s->value[OS_P_SPEAKER_FS], (double)s->value[OS_P_SPEAKER_QMS],
+                 (double)s->value[OS_P_SPEAKER_QES]);
+    } else {
+        snprintf(buf, len, "%g ohm resistor", (double)s->value[OS_P_LOAD]);
+    }
+}
+
+#define LOAD_POINTS 25
+#define CURVE_POINTS 300
+#define F_LO 10.0
+
+int cli_figure_load(const char *path, CliFigure fig, const CliFigureSpec *spec, char *err,
+                    size_t len)
+{
+    const CliSettings *s = &spec->settings;
+    /* small signal: 20 dB below where the stage should reach its limit */
+    const double level = isnan(spec->level) ? limit_dbfs(s) - 20.0 : spec->level;
+    const double amp = pow(10.0, level / 20.0);
+    const double f_hi = fmin(20000.0, 0.45 * spec->rate);
+    /* measured points up to 10 kHz for the impedance: the meters' peaks are
+     * sampled at the circuit's steps, which at 48 kHz x4 misses a 10 kHz
+     * sine's peak by at most 1.3 % */
+    const double f_meas = fig == CLI_FIG_IMPEDANCE ? fmin(10000.0, f_hi) : f_hi;
+    double fm[LOAD_POINTS], zm[LOAD_POINTS], gm[LOAD_POINTS];
+    for (int k = 0; k < LOAD_POINTS; ++k) {
+        fm[k] = F_LO * pow(f_meas / F_LO, (double)k / (LOAD_POINTS - 1));
+        if (cli_load_point(s, spec->rate, amp, fm[k], &zm[k], &gm[k], err, len) != 0) {
+            return -1;
+        }
+    }
+    char load[160], title[400];
+    describe_load(s, load, sizeof(load));
+    CliPlotSpec ps;
+    cli_plot_spec_init(&ps);
+    ps.title = title;
+    ps.xlabel = "Frequency (Hz)";
+    ps.xlog = 1;
+    ps.xmin = F_LO;
+    ps.xmax = f_hi;
+    if (fig == CLI_FIG_IMPEDANCE) {
+        double fc[CURVE_POINTS], zc[CURVE_POINTS];
+        double zmax = 0.0, zmin = 1e300;
+        for (int k = 0; k < CURVE_POINTS; ++k) {
+            fc[k] = F_LO * pow(f_hi / F_LO, (double)k / (CURVE_POINTS - 1));
+            double re, im;
+            os_load_impedance_of(s->value, fc[k], &re, &im);
+            zc[k] = hypot(re, im);
+            zmax = fmax(zmax, zc[k]);
+            zmin = fmin(zmin, zc[k]);
+        }
+        snprintf(title, sizeof(title), "Load impedance: %s", load);
+        ps.ylabel = "|Z| (ohm)";
+        ps.ylog = 1;
+        ps.ymin = 0.7 * zmin;
+        ps.ymax = 1.5 * zmax;
+        ps.hline = (double)s->value[OS_P_LOAD];
+        ps.hline_label = "Re";
+        const CliPlotSeries series[] = {
+            {fc, zc, CURVE_POINTS, {GREY[0], GREY[1], GREY[2]}, 0, 0, "closed form"},
+            {fm,
+             zm,
+             LOAD_POINTS,
+             {BLUE[0], BLUE[1], BLUE[2]},
+             0,
+             1,
+             "through the stage (peak voltage / peak current)"},
+        };
+        return cli_plot_write(path, &ps, series, 2, NULL, 0, err, len);
+    }
+    double lo = 0.0, hi = 0.0;
+    for (int k = 0; k < LOAD_POINTS; ++k) {
+        lo = fmin(lo, gm[k]);
+        hi = fmax(hi, gm[k]);
+    }
+    if (s->value[OS_P_LOAD_MODEL] >= 0.5f) {
+        snprintf(load, sizeof(load), "a driver (Re %g ohm, fs %g Hz)", (double)s->value[OS_P_LOAD],
+                 (double)s->value[OS_P_SPEAKER_FS]);
+    }
+    snprintf(title, sizeof(title), "%s stage into %s, %.1f dBFS", cli_stage_name(s->kind), load,
+             level);
+    ps.ylabel = "Load voltage over G x input (dB)";
+    ps.ymin = fmin(lo - 1.0, -1.0);
+    ps.ymax = fmax(hi + 1.0, 1.0);
+    ps.hline = 0.0;
+    ps.hline_label = "ideal";
+    const CliPlotSeries series[] = {
+        {fm, gm, LOAD_POINTS, {BLUE[0], BLUE[1], BLUE[2]}, 0, 1, "small-signal gain"},
+    };
+    return cli_plot_write(path, &ps, series, 1, NULL, 0, err, len);
 }

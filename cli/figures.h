@@ -14,9 +14,15 @@
 #include "sweep.h"
 
 /** Which figure. */
-typedef enum { CLI_FIG_TRANSFER, CLI_FIG_THD, CLI_FIG_SPECTRUM } CliFigure;
+typedef enum {
+    CLI_FIG_TRANSFER,
+    CLI_FIG_THD,
+    CLI_FIG_SPECTRUM,
+    CLI_FIG_IMPEDANCE,
+    CLI_FIG_RESPONSE
+} CliFigure;
 
-/** "transfer", "thd" or "spectrum": 0 and *fig, or -1. */
+/** "transfer", "thd", "spectrum", "impedance" or "response": 0 and *fig, or -1. */
 int cli_figure_parse(const char *name, CliFigure *fig);
 
 /** The sine a figure drives the stage with. */
@@ -51,5 +57,28 @@ int cli_figure_thd(const char *path, const CliSweepSpec *spec, const CliSweep *s
  * record of whole cycles, rectangular window. Returns 0 or -1 with a message.
  */
 int cli_figure_spectrum(const char *path, const CliFigureSpec *spec, char *err, size_t len);
+
+/**
+ * The load through the stage at one frequency: a sine of @p amp full-scale
+ * units at @p f Hz, after the stage settles (20 cycles or 0.1 s, plus six of a
+ * driver's decay times Qms / (pi fs), at most 2 s), over whole cycles of at
+ * least 50 ms: *z = peak load voltage / peak load current (the load's |Z| for
+ * a sine), *gain_db = the peak load voltage over G x the input's, dB.
+ * Returns 0 or -1 with a message.
+ */
+int cli_load_point(const CliSettings *s, double rate, double amp, double f, double *z,
+                   double *gain_db, char *err, size_t len);
+
+/**
+ * CLI_FIG_IMPEDANCE: the load's |Z| against frequency (log-log), its closed
+ * form (os_load_impedance_of()) and 25 points measured through the stage
+ * (cli_load_point(), 10 Hz - 10 kHz), Re dotted. CLI_FIG_RESPONSE: the
+ * stage's small-signal gain into the load, load voltage over G x input in dB,
+ * at 25 frequencies from 10 Hz to 20 kHz. Level @p spec->level (automatic:
+ * 20 dB below where the stage should reach its limit). Returns 0 or -1 with a
+ * message.
+ */
+int cli_figure_load(const char *path, CliFigure fig, const CliFigureSpec *spec, char *err,
+                    size_t len);
 
 #endif

@@ -194,7 +194,9 @@ static void arity(CliCommand c, int *lo, int *hi, const char **usage)
     } t[CLI_CMD_COUNT] = {
         {3, 3, "outstage render STAGE IN OUT [options]"},
         {1, 1, "outstage measure STAGE [options]"},
-        {3, 3, "outstage plot STAGE transfer|thd|spectrum OUT.png|OUT.svg [options]"},
+        {3, 3,
+         "outstage plot STAGE transfer|thd|spectrum|impedance|response OUT.png|OUT.svg "
+         "[options]"},
         {0, 1, "outstage demo [DIR] [options]"},
         {0, 0, "outstage list"},
         {0, 0, "outstage help"},
@@ -366,7 +368,9 @@ void cli_help(FILE *f)
           "           load power per level, the clip onset (THD from there on >= 1 %) and\n"
           "           the largest clean power\n"
           "  plot     transfer (load voltage against input voltage), thd (THD against load\n"
-          "           power, log-log) or spectrum (of a sine), as PNG or SVG\n"
+          "           power, log-log), spectrum (of a sine), impedance (of the load, closed\n"
+          "           form and through the stage) or response (small-signal gain into the\n"
+          "           load against frequency), as PNG or SVG\n"
           "  demo     make program material, render it through both stages at three\n"
           "           designs, write audio, plots and a report into DIR (default\n"
           "           outstage-demo)\n"

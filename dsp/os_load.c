@@ -5,6 +5,8 @@
 
 #include "os_load.h"
 
+#include "outstage.h"
+
 #include "os_ports.h"
 #include "os_solver.h"
 
@@ -123,4 +125,18 @@ void os_load_impedance(const OsLoad *l, double f, double *re, double *im)
 void os_load_reset(OsLoadState *s)
 {
     memset(s, 0, sizeof(*s));
+}
+
+void os_load_impedance_of(const float *values, double f, double *re, double *im)
+{
+    double si[OS_P_COUNT] = {0.0};
+    si[OS_P_LOAD] = (double)values[OS_P_LOAD];
+    si[OS_P_LOAD_MODEL] = (double)values[OS_P_LOAD_MODEL];
+    si[OS_P_SPEAKER_LE] = 1e-3 * (double)values[OS_P_SPEAKER_LE];
+    si[OS_P_SPEAKER_FS] = (double)values[OS_P_SPEAKER_FS];
+    si[OS_P_SPEAKER_QMS] = (double)values[OS_P_SPEAKER_QMS];
+    si[OS_P_SPEAKER_QES] = (double)values[OS_P_SPEAKER_QES];
+    OsLoad l;
+    os_load_setup(&l, si, 1e-6);
+    os_load_impedance(&l, f, re, im);
 }

@@ -119,6 +119,16 @@ void os_stage_process_probe(OsStage *stage, const float *in, float *out, double 
  */
 double os_stage_expected_limit(OsStageKind kind, const float *values, int *current_limited);
 
+/**
+ * The small-signal impedance of the load that component values @p values
+ * (port units, OS_P_COUNT of them indexed by OsParam: load, load_model and
+ * the speaker_* controls) describe, at @p f Hz: *re + j *im, ohm. A resistor
+ * of `load` ohms, or a loudspeaker's Re + j w Le + 1 / (1/Res + 1/(j w Lces)
+ * + j w Cmes) from its Thiele-Small parameters (docs/models.md). The closed
+ * form, for plots and reports. Real-time safe.
+ */
+void os_load_impedance_of(const float *values, double f, double *re, double *im);
+
 /** A combination of controls the circuit cannot have, and what the stage does
  *  instead (os_stage_conflicts()). */
 typedef struct {
