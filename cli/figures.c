@@ -343,8 +343,12 @@ int cli_figure_load(const char *path, CliFigure fig, const CliFigureSpec *spec, 
         ps.ylog = 1;
         ps.ymin = 0.7 * zmin;
         ps.ymax = 1.5 * zmax;
+        if (floor(log10(ps.ymin)) == floor(log10(ps.ymax))) {
+            /* no decade inside, so no labelled tick: down to the decade below */
+            ps.ymin = pow(10.0, floor(log10(ps.ymin)));
+        }
         ps.hline = (double)s->value[OS_P_LOAD];
-        ps.hline_label = "Re";
+        ps.hline_label = s->value[OS_P_LOAD_MODEL] >= 0.5f ? "Re" : "load";
         const CliPlotSeries series[] = {
             {fc, zc, CURVE_POINTS, {GREY[0], GREY[1], GREY[2]}, 0, 0, "closed form"},
             {fm,
